@@ -1,0 +1,82 @@
+"""Model -> per-channel figures and system budgets.
+
+Each concern lives in its own module and returns a frozen result with a
+``figures()`` method giving JSON-ready numbers keyed by name-with-SI-unit:
+
+- :mod:`.sampling`  rates, folding and the anti-aliasing filter (input channels)
+
+Every figure key is declared once with :func:`figure`, with its label, display
+unit, formula and source; the README table, the JSON contract and the channel
+pages all read that registry.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Mapping
+from dataclasses import dataclass
+from typing import Any
+
+from ..model import Channel, Spec
+from .figures import FIGURES, FigureInfo, FigureValue, figure
+from .sampling import SamplingResult, analyze_sampling
+
+__all__ = [
+    "FIGURES",
+    "ChannelResult",
+    "FigureInfo",
+    "FigureValue",
+    "SystemAnalysis",
+    "analyze",
+    "analyze_channel",
+    "figure",
+]
+
+
+@dataclass(frozen=True)
+class ChannelResult:
+    """Everything computed for one channel."""
+
+    channel: Channel
+    sampling: SamplingResult | None = None
+
+    @property
+    def figures(self) -> dict[str, FigureValue]:
+        out: dict[str, FigureValue] = {}
+        for part in (self.sampling,):
+            if part is not None:
+                out.update(part.figures())
+        return out
+
+
+@dataclass(frozen=True)
+class SystemAnalysis:
+    """The whole spec, analysed."""
+
+    spec: Spec
+    channels: tuple[ChannelResult, ...]
+
+    def result(self, channel_id: str) -> ChannelResult:
+        for r in self.channels:
+            if r.channel.id == channel_id:
+                return r
+        raise KeyError(channel_id)
+
+    @property
+    def by_id(self) -> Mapping[str, ChannelResult]:
+        return {r.channel.id: r for r in self.channels}
+
+    def totals(self) -> dict[str, Any]:
+        kinds = {"input": 0, "output": 0, "image": 0}
+        for r in self.channels:
+            kinds[r.channel.kind] += 1
+        return {"channels": len(self.channels), "channels_by_kind": kinds}
+
+
+def analyze_channel(channel: Channel, spec: Spec) -> ChannelResult:
+    """Compute every figure that follows from one channel's requirement."""
+    return ChannelResult(channel=channel, sampling=analyze_sampling(channel, spec.system))
+
+
+def analyze(spec: Spec) -> SystemAnalysis:
+    """Analyse every channel of a spec."""
+    return SystemAnalysis(spec, tuple(analyze_channel(ch, spec) for ch in spec.channels))

@@ -1,0 +1,145 @@
+"""Rules: one small function per check, registered with an id, severity and explanation.
+
+A rule never raises on bad data: it returns findings.  Channel rules are written as
+``fn(result, analysis) -> Iterable[Hit]``; the registry turns each hit into a located
+:class:`Finding`.  System rules (budgets, groups) are ``fn(analysis) -> Iterable[Finding]``.
+The site's rule reference and ``specfold rules`` are generated from :data:`RULES`.
+
+To add a rule: write the function in the module of its concern, decorate it, and give
+it a failing and a passing fixture in the tests.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable, Iterable
+from dataclasses import dataclass, replace
+
+from ..analysis import ChannelResult, SystemAnalysis
+
+SEVERITIES = ("error", "warning", "info")
+SEVERITY_RANK = {"error": 0, "warning": 1, "info": 2}
+
+
+@dataclass(frozen=True)
+class Finding:
+    rule: str
+    severity: str
+    channels: tuple[str, ...]
+    file: str
+    line: int
+    message: str
+    waived: bool = False
+    waiver_reason: str = ""
+
+    def sort_key(self) -> tuple[str, int, int, str, str]:
+        return (self.file, self.line, SEVERITY_RANK[self.severity], self.rule, self.message)
+
+
+@dataclass(frozen=True)
+class Hit:
+    """One failure found by a channel rule: its message and the key it is about."""
+
+    message: str
+    path: str = ""  # "conversion.rate": the key whose line the finding points at
+    severity: str | None = None  # overrides the rule's default
+
+
+SystemCheck = Callable[[SystemAnalysis], Iterable[Finding]]
+ChannelCheck = Callable[[ChannelResult, SystemAnalysis], Iterable[Hit]]
+
+
+@dataclass(frozen=True)
+class Rule:
+    id: str
+    severity: str
+    title: str
+    explanation: str  # one paragraph, with the formula
+    check: SystemCheck
+
+
+RULES: dict[str, Rule] = {}
+
+
+def system_rule(rule_id: str, severity: str, title: str, explanation: str) -> Callable[[SystemCheck], SystemCheck]:
+    """Register a rule that looks at the whole system."""
+
+    def register(fn: SystemCheck) -> SystemCheck:
+        if rule_id in RULES:
+            raise ValueError(f"rule {rule_id} registered twice")
+        if severity not in SEVERITIES:
+            raise ValueError(f"rule {rule_id}: unknown severity {severity}")
+        RULES[rule_id] = Rule(rule_id, severity, title, " ".join(explanation.split()), fn)
+        return fn
+
+    return register
+
+
+def channel_rule(
+    rule_id: str, severity: str, title: str, explanation: str, kinds: tuple[str, ...] = ("input",)
+) -> Callable[[ChannelCheck], ChannelCheck]:
+    """Register a rule checked channel by channel, for channels of the given kinds."""
+
+    def register(fn: ChannelCheck) -> ChannelCheck:
+        def check(analysis: SystemAnalysis) -> Iterable[Finding]:
+            for result in analysis.channels:
+                ch = result.channel
+                if ch.kind not in kinds:
+                    continue
+                for hit in fn(result, analysis):
+                    line = ch.line_of(hit.path) if hit.path else 1
+                    yield Finding(rule_id, hit.severity or severity, (ch.id,), ch.source.file, line, hit.message)
+
+        system_rule(rule_id, severity, title, explanation)(check)
+        return fn
+
+    return register
+
+
+def _load_rule_modules() -> None:
+    # Imported for their registrations; the order here is the order of `specfold rules`.
+    from . import sampling  # noqa: F401
+
+
+def apply_waivers(findings: Iterable[Finding], analysis: SystemAnalysis) -> list[Finding]:
+    """Mark findings covered by a channel's ``[[waiver]]``: still listed, no longer failing."""
+    by_id = analysis.by_id
+    out = []
+    for f in findings:
+        for cid in f.channels:
+            result = by_id.get(cid)
+            waiver = next((w for w in result.channel.waivers if w.rule == f.rule), None) if result else None
+            if waiver is not None:
+                f = replace(f, waived=True, waiver_reason=waiver.reason)
+                break
+        out.append(f)
+    return out
+
+
+def run_rules(analysis: SystemAnalysis, only: Iterable[str] | None = None) -> list[Finding]:
+    """Run every registered rule (or only the named ones); findings sorted by place."""
+    _load_rule_modules()
+    wanted = set(only) if only is not None else None
+    findings: list[Finding] = []
+    for rule in RULES.values():
+        if wanted is None or rule.id in wanted:
+            findings.extend(rule.check(analysis))
+    return sorted(apply_waivers(findings, analysis), key=Finding.sort_key)
+
+
+def all_rules() -> list[Rule]:
+    """Every registered rule, in registration order."""
+    _load_rule_modules()
+    return list(RULES.values())
+
+
+def channel_status(findings: Iterable[Finding], channel_id: str) -> str:
+    """ok | warning | error: the worst unwaived finding on the channel (info does not count)."""
+    worst = "ok"
+    for f in findings:
+        if f.waived or channel_id not in f.channels:
+            continue
+        if f.severity == "error":
+            return "error"
+        if f.severity == "warning":
+            worst = "warning"
+    return worst
