@@ -4,6 +4,7 @@ Each concern lives in its own module and returns a frozen result with a
 ``figures()`` method giving JSON-ready numbers keyed by name-with-SI-unit:
 
 - :mod:`.sampling`  rates, folding and the anti-aliasing filter (input channels)
+- :mod:`.amplitude` range usage, LSB, quantization, jitter and sensor noise, the noise budget
 
 Every figure key is declared once with :func:`figure`, with its label, display
 unit, formula and source; the README table, the JSON contract and the channel
@@ -17,6 +18,7 @@ from dataclasses import dataclass
 from typing import Any
 
 from ..model import Channel, Spec
+from .amplitude import AmplitudeResult, analyze_amplitude
 from .figures import FIGURES, FigureInfo, FigureValue, figure
 from .sampling import SamplingResult, analyze_sampling
 
@@ -38,11 +40,12 @@ class ChannelResult:
 
     channel: Channel
     sampling: SamplingResult | None = None
+    amplitude: AmplitudeResult | None = None
 
     @property
     def figures(self) -> dict[str, FigureValue]:
         out: dict[str, FigureValue] = {}
-        for part in (self.sampling,):
+        for part in (self.sampling, self.amplitude):
             if part is not None:
                 out.update(part.figures())
         return out
@@ -74,7 +77,11 @@ class SystemAnalysis:
 
 def analyze_channel(channel: Channel, spec: Spec) -> ChannelResult:
     """Compute every figure that follows from one channel's requirement."""
-    return ChannelResult(channel=channel, sampling=analyze_sampling(channel, spec.system))
+    return ChannelResult(
+        channel=channel,
+        sampling=analyze_sampling(channel, spec.system),
+        amplitude=analyze_amplitude(channel, spec.system),
+    )
 
 
 def analyze(spec: Spec) -> SystemAnalysis:

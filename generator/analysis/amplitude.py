@@ -1,0 +1,300 @@
+"""Amplitude figures: does the signal fit the converter, are there enough bits, what sets the noise floor.
+
+Every SNR here is relative to the channel's own signal, a sine at ``peak`` (rms = peak / sqrt(2)),
+not to full scale; only ``sqnr_db`` and ``dynamic_range_db`` are full-scale figures.  Noise is
+counted over one noise bandwidth for all contributions: the band's width when the data are
+filtered to the band (which is when processing gain is credited), otherwise 0..fs/2.
+
+Volts are at the converter input (after the gain) unless a row says otherwise; engineering-unit
+values are referred back to the measurand through the sensitivity and the gain.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, replace
+
+from ..dsp import quantization as q
+from ..model import Channel, System
+from .figures import FigureValue, figure
+
+_SIGNAL = "signal = sine at the channel's peak, rms = peak / sqrt(2)"
+
+PEAK_VOLTS = figure(
+    "peak_volts", "Peak at the converter", "V", "V_pk = peak x sensitivity x gain", "requirement; sensor data"
+)
+RANGE_USAGE = figure(
+    "range_usage", "Share of full scale used", "", "V_pk / full-scale peak", "definition"
+)
+HEADROOM = figure(
+    "headroom_db", "Headroom to full scale", "dB", "20 log10(full-scale peak / V_pk)", "definition"
+)
+LSB_VOLTS = figure(
+    "lsb_volts", "LSB (code width)", "V",
+    "q = FSR / 2^N (some data sheets use FSR / (2^N - 1))", "IEEE Std 1241-2010; ADI MT-001",
+)
+LSB_UNITS = figure(
+    "lsb_units", "LSB in the engineering unit", "<unit>", "q / (sensitivity x gain)", "IEEE Std 1241-2010"
+)
+SQNR = figure(
+    "sqnr_db", "Quantization SNR, full-scale sine", "dB",
+    "SQNR = N x 20 log10(2) + 10 log10(1.5) (= 6.02 N + 1.76 dB)", "ADI MT-001",
+)
+QNOISE = figure(
+    "quantization_noise_volts", "Quantization noise, 0..fs/2", "V", "q / sqrt(12)", "ADI MT-001; Bennett 1948"
+)
+PGAIN = figure(
+    "processing_gain_db", "Processing gain credited", "dB",
+    "10 log10(fs / (2 B)) when filtered_to_band and B < fs / 2, else 0", "ADI MT-001",
+)
+JITTER_SNR = figure(
+    "jitter_snr_db", "Jitter-limited SNR at the band top", "dB", "-20 log10(2 pi f_high t_j)",
+    "ADI MT-007; ADI AN-756",
+)
+SENSOR_SNR = figure(
+    "sensor_snr_db", "Sensor-noise SNR", "dB",
+    f"20 log10(signal rms / sensor noise rms), noise = rms or density x sqrt(B_n); {_SIGNAL}", "definition",
+)
+TOTAL_SNR = figure(
+    "total_snr_db", "Total SNR at the channel's peak", "dB",
+    f"-10 log10(sum 10^(-SNR_i / 10)) over quantization, jitter, sensor; {_SIGNAL}", "ADI MT-003; ADI AN-756",
+)
+ENOB = figure(
+    "enob_bits", "Effective bits at the channel's peak", "",
+    "(total SNR - 10 log10(1.5)) / 20 log10(2) (= (SINAD - 1.76) / 6.02), not corrected to full scale",
+    "ADI MT-003",
+)
+DYNAMIC_RANGE = figure(
+    "dynamic_range_db", "Dynamic range", "dB",
+    "20 log10(full-scale sine rms / rss(quantization, sensor noise)), in B_n", "ADI MT-003",
+)
+
+
+@dataclass(frozen=True)
+class Contribution:
+    """One row of a noise budget.  ``volts`` at the converter input, ``units`` in SI of the measurand.
+
+    ``db`` is the contribution relative to the signal (negative: below it), or None when the
+    signal's level is unknown.
+    """
+
+    name: str
+    volts: float | None
+    units: float | None
+    db: float | None
+
+
+@dataclass(frozen=True)
+class AmplitudeResult:
+    kind: str
+    bits: int
+    full_scale_range_volts: float
+    full_scale_peak_volts: float
+    lsb_volts: float
+    sqnr_db: float
+    quantization_noise_volts: float
+    unit_factor: float  # SI value of one engineering unit
+    noise_bandwidth_hz: float | None = None
+    volts_per_unit: float | None = None  # at the converter, per SI unit of the measurand
+    peak_volts: float | None = None
+    processing_gain_db: float | None = None
+    quantization_snr_db: float | None = None  # in band, relative to the signal
+    jitter_snr_db: float | None = None
+    sensor_snr_db: float | None = None
+    total_snr_db: float | None = None
+    dynamic_range_db: float | None = None
+    budget: tuple[Contribution, ...] = ()
+
+    @property
+    def range_usage(self) -> float | None:
+        return None if self.peak_volts is None else self.peak_volts / self.full_scale_peak_volts
+
+    @property
+    def headroom_db(self) -> float | None:
+        if self.peak_volts is None or self.peak_volts <= 0:
+            return None
+        return q.amplitude_db(self.full_scale_peak_volts / self.peak_volts)
+
+    @property
+    def lsb_si(self) -> float | None:
+        """The LSB referred to the measurand, SI."""
+        return None if self.volts_per_unit is None else self.lsb_volts / self.volts_per_unit
+
+    @property
+    def enob_bits(self) -> float | None:
+        return None if self.total_snr_db is None else q.enob(self.total_snr_db)
+
+    def dominant(self) -> Contribution | None:
+        """The largest contribution of the budget (the total row excluded)."""
+        rows = [c for c in self.budget if c.name != "total" and c.db is not None]
+        return max(rows, key=lambda c: c.db or -math.inf) if rows else None
+
+    def figures(self) -> dict[str, FigureValue]:
+        lsb_si = self.lsb_si
+        values: dict[str, float | None] = {
+            PEAK_VOLTS: self.peak_volts,
+            RANGE_USAGE: self.range_usage,
+            HEADROOM: self.headroom_db,
+            LSB_VOLTS: self.lsb_volts,
+            LSB_UNITS: None if lsb_si is None else lsb_si / self.unit_factor,
+            SQNR: self.sqnr_db,
+            QNOISE: self.quantization_noise_volts,
+            PGAIN: self.processing_gain_db,
+            JITTER_SNR: self.jitter_snr_db,
+            SENSOR_SNR: self.sensor_snr_db,
+            TOTAL_SNR: self.total_snr_db,
+            ENOB: self.enob_bits,
+            DYNAMIC_RANGE: self.dynamic_range_db,
+        }
+        return {k: v for k, v in values.items() if v is not None}
+
+    def budget_table(self) -> list[dict[str, FigureValue]]:
+        """The noise budget as rows for the channel page (units in the channel's engineering unit)."""
+        return [
+            {
+                "contribution": c.name,
+                "rms_volts": c.volts,
+                "rms_units": None if c.units is None else c.units / self.unit_factor,
+                "db_re_signal": c.db,
+            }
+            for c in self.budget
+        ]
+
+
+def _volts_per_unit(channel: Channel) -> float | None:
+    """Volts at the converter per SI unit of the measurand; None when the chain is not known."""
+    sensitivity = channel.sensor.sensitivity
+    if sensitivity is None and channel.unit.dim == "V":
+        sensitivity = 1.0  # the measurand is a voltage at the gain stage's input
+    return None if sensitivity is None else sensitivity * channel.conversion.gain
+
+
+def _noise_bandwidth(channel: Channel) -> tuple[float | None, float]:
+    """(noise bandwidth in Hz, processing gain credited in dB)."""
+    rate = channel.conversion.rate
+    band = channel.signal.band
+    if rate is None or rate <= 0:
+        return (band[1] - band[0] if band else None), 0.0
+    width = band[1] - band[0] if band else None
+    if channel.signal.filtered_to_band and width is not None and 0 < width < rate / 2.0:
+        return width, q.processing_gain_db(rate, width)
+    return rate / 2.0, 0.0
+
+
+def _sensor_noise(channel: Channel, bandwidth: float | None) -> tuple[float | None, float | None] | None:
+    """Sensor noise rms as (volts at the sensor output, SI units of the measurand); None if not given."""
+    noise = channel.sensor.noise
+    if noise is None:
+        return None
+    if noise.density:
+        if bandwidth is None:
+            return None
+        rms = q.noise_from_density(noise.value, bandwidth)
+    else:
+        rms = noise.value
+    sensitivity = channel.sensor.sensitivity
+    if sensitivity is None and channel.unit.dim == "V":
+        sensitivity = 1.0
+    if noise.in_volts:
+        return rms, (None if sensitivity is None else rms / sensitivity)
+    return (None if sensitivity is None else rms * sensitivity), rms
+
+
+def _db_re(signal_rms: float | None, noise_rms: float | None) -> float | None:
+    if signal_rms is None or noise_rms is None or signal_rms <= 0 or noise_rms <= 0:
+        return None
+    return q.amplitude_db(noise_rms / signal_rms)
+
+
+def analyze_amplitude(channel: Channel, system: System) -> AmplitudeResult | None:
+    """Amplitude, bits and the noise budget of an input channel (LSB and SQNR only for outputs)."""
+    conv = channel.conversion
+    if channel.kind == "image" or conv.bits is None or conv.full_scale is None or conv.bits < 1:
+        return None
+    span = conv.full_scale
+    if span.dim != "V" or span.width <= 0:
+        return None
+    lsb = q.lsb(span.width, conv.bits)
+    qnoise = q.quantization_noise_rms(lsb)
+    base = AmplitudeResult(
+        kind=channel.kind,
+        bits=conv.bits,
+        full_scale_range_volts=span.width,
+        full_scale_peak_volts=span.peak,
+        lsb_volts=lsb,
+        sqnr_db=q.sqnr_db(conv.bits),
+        quantization_noise_volts=qnoise,
+        unit_factor=channel.unit.factor,
+    )
+    if channel.kind == "output":
+        # an output's code width, referred through the gain to the driven voltage
+        per_unit = 1.0 / conv.gain if channel.unit.dim == "V" and conv.gain > 0 else None
+        return replace(base, volts_per_unit=per_unit)
+    return _input(channel, base)
+
+
+def _input(channel: Channel, base: AmplitudeResult) -> AmplitudeResult:
+    per_unit = _volts_per_unit(channel)
+    peak = channel.signal.peak
+    peak_volts = None if per_unit is None or peak is None else abs(peak) * per_unit
+    signal_v = None if peak_volts is None else q.sine_rms(peak_volts)
+    signal_si = None if peak is None else q.sine_rms(abs(peak))
+    bandwidth, pg = _noise_bandwidth(channel)
+    gain = channel.conversion.gain
+
+    def units(volts: float | None) -> float | None:
+        return None if volts is None or per_unit is None else volts / per_unit
+
+    rows: list[Contribution] = []
+    # quantization, in the noise bandwidth
+    q_band = base.quantization_noise_volts / q.amplitude_ratio(pg)
+    rows.append(Contribution("quantization", q_band, units(q_band), _db_re(signal_v, q_band)))
+    # sampling jitter, on a sine at the band top
+    jitter = channel.conversion.jitter
+    band = channel.signal.band
+    jitter_snr = None
+    if jitter is not None and jitter > 0 and band is not None and band[1] > 0:
+        jitter_snr = q.jitter_snr_db(band[1], jitter)
+        j_volts = None if signal_v is None else q.jitter_noise_rms(signal_v, band[1], jitter)
+        j_units = None if signal_si is None else q.jitter_noise_rms(signal_si, band[1], jitter)
+        rows.append(Contribution("sampling jitter", j_volts, j_units, -jitter_snr))
+    # sensor noise, referred to the converter input through the gain
+    sensor = _sensor_noise(channel, bandwidth)
+    sensor_snr = None
+    sensor_at_converter = None
+    if sensor is not None:
+        s_volts, s_si = sensor
+        sensor_at_converter = None if s_volts is None else s_volts * gain
+        db = _db_re(signal_si, s_si) if s_si is not None else _db_re(signal_v, sensor_at_converter)
+        sensor_snr = None if db is None else -db
+        rows.append(Contribution("sensor noise", sensor_at_converter, s_si, db))
+
+    q_snr = None if rows[0].db is None else -rows[0].db
+    total_snr = None
+    if all(r.db is not None for r in rows):
+        total_snr = q.power_sum_snr_db(-(r.db or 0.0) for r in rows)
+        total_v = q.rss(r.volts for r in rows if r.volts is not None) if signal_v is not None else None
+        total_db = -total_snr
+        rows.append(Contribution("total", total_v, units(total_v), total_db))
+
+    # dynamic range: full-scale sine over the noise present with no signal (jitter needs a signal)
+    floor = [base.quantization_noise_volts / q.amplitude_ratio(pg)]
+    dynamic_range = None
+    if sensor is None or sensor_at_converter is not None:
+        if sensor_at_converter is not None:
+            floor.append(sensor_at_converter)
+        dynamic_range = q.snr_db(q.sine_rms(base.full_scale_range_volts / 2.0), q.rss(floor))
+
+    return replace(
+        base,
+        noise_bandwidth_hz=bandwidth,
+        volts_per_unit=per_unit,
+        peak_volts=peak_volts,
+        processing_gain_db=pg,
+        quantization_snr_db=q_snr,
+        jitter_snr_db=jitter_snr,
+        sensor_snr_db=sensor_snr,
+        total_snr_db=total_snr,
+        dynamic_range_db=dynamic_range,
+        budget=tuple(rows),
+    )

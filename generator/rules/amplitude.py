@@ -1,0 +1,245 @@
+"""Rules about amplitude, bits and the noise floor of input channels."""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Iterator
+
+from ..analysis import ChannelResult, SystemAnalysis
+from ..analysis.amplitude import AmplitudeResult
+from ..dsp import quantization as q
+from ..model import Channel
+from ..quantities import Span, format_in_unit, format_percent, format_quantity
+from . import Hit, channel_rule
+
+UNDERUSED_BELOW = 0.1
+"""Range usage under which a channel is flagged: a tenth of full scale (common practice)."""
+
+TARGET_USAGE = 0.9
+"""Share of full scale a suggested gain aims at, leaving about 1 dB of headroom (common practice)."""
+
+
+def _span(span: Span) -> str:
+    if span.bipolar:
+        return f"±{format_quantity(span.high, span.dim)}"
+    return f"{format_quantity(span.low, span.dim)}..{format_quantity(span.high, span.dim)}"
+
+
+def _db(value: float) -> str:
+    return f"{value:.1f} dB"
+
+
+def _gain(value: float) -> str:
+    return f"{value:.3g} V/V ({q.amplitude_db(value):.1f} dB)"
+
+
+def _path(ch: Channel, *paths: str) -> str:
+    """The first of ``paths`` the file actually writes (so the finding points at it), else the last."""
+    return next((p for p in paths if p in ch.lines), paths[-1])
+
+
+def _peak_text(ch: Channel) -> str:
+    peak = ch.signal.peak
+    return "the peak" if peak is None else f"the peak of {format_in_unit(peak, ch.unit)}"
+
+
+def _gain_fix(ch: Channel, a: AmplitudeResult) -> str:
+    """'a gain of about 9.47 V/V (19.5 dB)': the gain that puts the peak at about 90 % of full scale."""
+    usage = a.range_usage or 0.0
+    wanted = ch.conversion.gain * TARGET_USAGE / usage
+    if ch.conversion.gain == 1.0:
+        return f"a gain of about {_gain(wanted)} ahead of the converter"
+    return f"changing the gain from {_gain(ch.conversion.gain)} to about {_gain(wanted)}"
+
+
+@channel_rule(
+    "clipping",
+    "error",
+    "Peak beyond the converter's full scale",
+    """The signal at the converter, V_pk = peak x sensitivity x gain, must stay within the full
+    scale: V_pk <= full-scale peak. Beyond it the converter clips and every figure downstream
+    is wrong. Lower the gain, choose a less sensitive sensor or a wider full scale.""",
+)
+def clipping(result: ChannelResult, analysis: SystemAnalysis) -> Iterator[Hit]:
+    a = result.amplitude
+    ch = result.channel
+    conv = ch.conversion
+    if a is None or a.peak_volts is None or conv.full_scale is None:
+        return
+    if a.peak_volts <= a.full_scale_peak_volts:
+        return
+    over = q.amplitude_db(a.peak_volts / a.full_scale_peak_volts)
+    yield Hit(
+        f"{_peak_text(ch)} gives {format_quantity(a.peak_volts, 'V')} at the converter, "
+        f"{_db(over)} beyond the {_span(conv.full_scale)} full scale; try {_gain_fix(ch, a)} "
+        f"(about {format_percent(TARGET_USAGE)} of full scale), a less sensitive sensor or a wider full scale",
+        _path(ch, "conversion.gain", "signal.peak"),
+    )
+
+
+@channel_rule(
+    "range-underused",
+    "warning",
+    "Peak uses less than a tenth of full scale",
+    """Range usage = V_pk / full-scale peak. A signal below a tenth of full scale (20 dB of
+    headroom; a common-practice threshold) wastes more than 3 bits: every contribution fixed in
+    volts (quantization, converter noise) grows by the same factor relative to the signal. Raise
+    the gain towards about 90 % of full scale, or choose a smaller full scale.""",
+)
+def range_underused(result: ChannelResult, analysis: SystemAnalysis) -> Iterator[Hit]:
+    a = result.amplitude
+    ch = result.channel
+    conv = ch.conversion
+    usage = None if a is None else a.range_usage
+    if a is None or usage is None or usage <= 0 or usage >= UNDERUSED_BELOW or conv.full_scale is None:
+        return
+    yield Hit(
+        f"{_peak_text(ch)} gives {format_quantity(a.peak_volts or 0.0, 'V')} at the converter, "
+        f"{format_percent(usage)} of the {_span(conv.full_scale)} full scale ({_db(a.headroom_db or 0.0)} "
+        f"of headroom); {_gain_fix(ch, a)} would use about {format_percent(TARGET_USAGE)}, "
+        "or choose a smaller full scale",
+        _path(ch, "conversion.gain", "signal.peak"),
+    )
+
+
+@channel_rule(
+    "resolution",
+    "error",
+    "LSB coarser than the required resolution",
+    """One LSB referred to the measurand, q / (sensitivity x gain) with q = FSR / 2^N, must not
+    exceed the required `resolution`. Use more bits (N >= log2(FSR / (resolution x sensitivity
+    x gain))), or raise the gain if the peak still fits the full scale.""",
+)
+def resolution(result: ChannelResult, analysis: SystemAnalysis) -> Iterator[Hit]:
+    a = result.amplitude
+    ch = result.channel
+    wanted = ch.signal.resolution
+    lsb_si = None if a is None else a.lsb_si
+    if a is None or lsb_si is None or wanted is None or wanted <= 0 or lsb_si <= wanted:
+        return
+    per_unit = a.volts_per_unit or 1.0
+    bits = q.bits_for_lsb(a.full_scale_range_volts, wanted * per_unit)
+    factor = lsb_si / wanted
+    fix = f"use at least {bits} bits"
+    usage = a.range_usage
+    if usage is not None and usage * factor <= 1.0:
+        fix += (
+            f", or raise the gain by at least {factor:.3g} x (the peak would then use "
+            f"{format_percent(usage * factor)} of full scale)"
+        )
+    elif usage is not None:
+        fix += f"; raising the gain {factor:.3g} x would clip the peak"
+    yield Hit(
+        f"one LSB is {format_in_unit(lsb_si, ch.unit)} ({format_quantity(a.lsb_volts, 'V')} at the converter, "
+        f"{a.bits} bits over {format_quantity(a.full_scale_range_volts, 'V')}), coarser than the required "
+        f"{format_in_unit(wanted, ch.unit)}; {fix}",
+        _path(ch, "signal.resolution"),
+    )
+
+
+def _allowed_for(a: AmplitudeResult, name: str, required_db: float) -> float | None:
+    """The SNR the named contribution needs so that the power sum meets ``required_db``, if reachable."""
+    others = [-(c.db or 0.0) for c in a.budget if c.name not in (name, "total") and c.db is not None]
+    room = math.pow(10.0, -required_db / 10.0) - math.fsum(math.pow(10.0, -s / 10.0) for s in others)
+    return None if room <= 0 else -q.power_db(room)
+
+
+@channel_rule(
+    "noise-floor",
+    "error",
+    "Total SNR below the required SNR",
+    """The noise contributions (quantization, sampling jitter, sensor noise), each relative to a
+    sine at the channel's peak, add as powers: SNR_total = -10 log10(sum 10^(-SNR_i / 10)). It must
+    reach the required `snr`. The message names the largest contribution, the one to fix first.""",
+)
+def noise_floor(result: ChannelResult, analysis: SystemAnalysis) -> Iterator[Hit]:
+    a = result.amplitude
+    ch = result.channel
+    required = ch.signal.snr_db
+    if a is None or a.total_snr_db is None or required is None or a.total_snr_db >= required:
+        return
+    top = a.dominant()
+    if top is None or top.db is None:
+        return
+    need = _allowed_for(a, top.name, required)
+    if need is None:
+        fix = "the other contributions alone already miss it, so improve them too"
+    elif top.name == "quantization":
+        fix = (f"it needs {_db(need)}: use more bits, raise the gain so the peak uses more of the range, "
+               "or filter the data to the band (filtered_to_band) to earn processing gain")
+    elif top.name == "sampling jitter":
+        band = ch.signal.band
+        f_high = band[1] if band else 0.0
+        fix = (f"it needs {_db(need)}: lower the jitter to at most "
+               f"{format_quantity(q.max_jitter(need, f_high), 's')} rms" if f_high > 0 else f"it needs {_db(need)}")
+    else:
+        noise = ch.sensor.noise
+        peak = ch.signal.peak
+        fix = f"it needs {_db(need)}: choose a quieter sensor"
+        if peak is not None and noise is not None:
+            allowed_si = q.sine_rms(peak) / q.amplitude_ratio(need)
+            fix += f" (at most {format_in_unit(allowed_si, ch.unit)} rms in the band)"
+        if not ch.signal.filtered_to_band:
+            fix += ", or filter the data to the band (filtered_to_band) to narrow the noise bandwidth"
+    yield Hit(
+        f"total SNR {_db(a.total_snr_db)} at {_peak_text(ch)} is below the required {_db(required)}; "
+        f"the largest contribution is {top.name} at {_db(-top.db)} below the signal; {fix}",
+        _path(ch, "signal.snr"),
+    )
+
+
+@channel_rule(
+    "jitter-limit",
+    "error",
+    "Sampling jitter alone misses the required SNR",
+    """A sine at the band top f_high sampled with rms jitter t_j can reach at most
+    SNR_j = -20 log10(2 pi f_high t_j) (ADI MT-007, AN-756), whatever the bits. If that is below the
+    required `snr`, lower the jitter to t_j <= 10^(-SNR/20) / (2 pi f_high) or narrow the band.""",
+)
+def jitter_limit(result: ChannelResult, analysis: SystemAnalysis) -> Iterator[Hit]:
+    a = result.amplitude
+    ch = result.channel
+    required = ch.signal.snr_db
+    band = ch.signal.band
+    jitter = ch.conversion.jitter
+    if a is None or a.jitter_snr_db is None or required is None or band is None or jitter is None:
+        return
+    if a.jitter_snr_db >= required:
+        return
+    yield Hit(
+        f"{format_quantity(jitter, 's')} rms of sampling jitter limits a sine at "
+        f"{format_quantity(band[1], 'Hz')} to {_db(a.jitter_snr_db)}, below the required {_db(required)}; "
+        f"lower the jitter to at most {format_quantity(q.max_jitter(required, band[1]), 's')} rms "
+        "(a cleaner clock or converter), or lower the band top",
+        _path(ch, "conversion.jitter", "conversion.converter", "signal.snr"),
+    )
+
+
+@channel_rule(
+    "bits-mismatch",
+    "warning",
+    "Channel states bits or full scale unlike its converter's",
+    """A channel inherits `bits` and `full_scale` from its converter. Writing a different value in
+    the channel file makes its figures disagree with the hardware it names. Remove the key to
+    inherit the converter's value, or correct the converter in system.toml.""",
+)
+def bits_mismatch(result: ChannelResult, analysis: SystemAnalysis) -> Iterator[Hit]:
+    ch = result.channel
+    conv = ch.conversion
+    converter = analysis.spec.system.converters.get(conv.converter) if conv.converter else None
+    if converter is None:
+        return
+    if "bits" in conv.stated and conv.bits is not None and conv.bits != converter.bits:
+        yield Hit(
+            f"the channel states {conv.bits} bits but converter '{converter.id}' has {converter.bits}; "
+            f"the figures use {conv.bits}: remove bits to inherit {converter.bits}, or correct one of the two",
+            "conversion.bits",
+        )
+    fs = conv.full_scale
+    if "full_scale" in conv.stated and fs is not None and fs != converter.full_scale:
+        yield Hit(
+            f"the channel states a full scale of {_span(fs)} but converter '{converter.id}' has "
+            f"{_span(converter.full_scale)}; the figures use {_span(fs)}: remove full_scale to inherit "
+            "the converter's, or correct one of the two",
+            "conversion.full_scale",
+        )
