@@ -9,7 +9,7 @@ from ..analysis import ChannelResult, SystemAnalysis
 from ..analysis.amplitude import AmplitudeResult
 from ..dsp import quantization as q
 from ..model import Channel
-from ..quantities import Span, format_in_unit, format_percent, format_quantity
+from ..quantities import Span, Unit, format_in_unit, format_percent, format_quantity
 from . import Hit, channel_rule
 
 UNDERUSED_BELOW = 0.1
@@ -162,24 +162,35 @@ def noise_floor(result: ChannelResult, analysis: SystemAnalysis) -> Iterator[Hit
     if top is None or top.db is None:
         return
     need = _allowed_for(a, top.name, required)
+    band = ch.signal.band
+    rate = ch.conversion.rate
+    can_filter = (
+        not ch.signal.filtered_to_band and band is not None and rate is not None and band[1] - band[0] < rate / 2
+    )
     if need is None:
         fix = "the other contributions alone already miss it, so improve them too"
     elif top.name == "quantization":
-        fix = (f"it needs {_db(need)}: use more bits, raise the gain so the peak uses more of the range, "
-               "or filter the data to the band (filtered_to_band) to earn processing gain")
+        fix = f"it needs {_db(need)}: use more bits or raise the gain so the peak uses more of the range"
+        if can_filter:
+            fix += ", or filter the data to the band (filtered_to_band) to earn processing gain"
     elif top.name == "sampling jitter":
-        band = ch.signal.band
-        f_high = band[1] if band else 0.0
-        fix = (f"it needs {_db(need)}: lower the jitter to at most "
-               f"{format_quantity(q.max_jitter(need, f_high), 's')} rms" if f_high > 0 else f"it needs {_db(need)}")
+        fix = f"it needs {_db(need)}"
+        if band is not None and band[1] > 0:
+            fix += f": lower the jitter to at most {format_quantity(q.max_jitter(need, band[1]), 's')} rms"
     else:
         noise = ch.sensor.noise
         peak = ch.signal.peak
         fix = f"it needs {_db(need)}: choose a quieter sensor"
         if peak is not None and noise is not None:
             allowed_si = q.sine_rms(peak) / q.amplitude_ratio(need)
-            fix += f" (at most {format_in_unit(allowed_si, ch.unit)} rms in the band)"
-        if not ch.signal.filtered_to_band:
+            if noise.density and a.noise_bandwidth_hz:
+                per_root_hz = Unit(f"{ch.unit.symbol}/√Hz", ch.unit.factor, ch.unit.dim)
+                allowed_density = allowed_si / math.sqrt(a.noise_bandwidth_hz)
+                fix += (f" (at most {format_in_unit(allowed_density, per_root_hz)} over "
+                        f"{format_quantity(a.noise_bandwidth_hz, 'Hz')})")
+            else:
+                fix += f" (at most {format_in_unit(allowed_si, ch.unit)} rms in the band)"
+        if can_filter and noise is not None and noise.density:
             fix += ", or filter the data to the band (filtered_to_band) to narrow the noise bandwidth"
     yield Hit(
         f"total SNR {_db(a.total_snr_db)} at {_peak_text(ch)} is below the required {_db(required)}; "
