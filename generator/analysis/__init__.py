@@ -4,6 +4,8 @@ Each concern lives in its own module and returns a frozen result with a
 ``figures()`` method giving JSON-ready numbers keyed by name-with-SI-unit:
 
 - :mod:`.sampling`  rates, folding and the anti-aliasing filter (input channels)
+- :mod:`.output`    hold droop, images and drive level (output channels)
+- :mod:`.image`     pixel pitch, spatial Nyquist and frame size (image channels)
 
 Every figure key is declared once with :func:`figure`, with its label, display
 unit, formula and source; the README table, the JSON contract and the channel
@@ -18,6 +20,8 @@ from typing import Any
 
 from ..model import Channel, Spec
 from .figures import FIGURES, FigureInfo, FigureValue, figure
+from .image import ImageResult, analyze_image
+from .output import OutputResult, analyze_output
 from .sampling import SamplingResult, analyze_sampling
 
 __all__ = [
@@ -38,11 +42,13 @@ class ChannelResult:
 
     channel: Channel
     sampling: SamplingResult | None = None
+    output: OutputResult | None = None
+    image: ImageResult | None = None
 
     @property
     def figures(self) -> dict[str, FigureValue]:
         out: dict[str, FigureValue] = {}
-        for part in (self.sampling,):
+        for part in (self.sampling, self.output, self.image):
             if part is not None:
                 out.update(part.figures())
         return out
@@ -74,7 +80,12 @@ class SystemAnalysis:
 
 def analyze_channel(channel: Channel, spec: Spec) -> ChannelResult:
     """Compute every figure that follows from one channel's requirement."""
-    return ChannelResult(channel=channel, sampling=analyze_sampling(channel, spec.system))
+    return ChannelResult(
+        channel=channel,
+        sampling=analyze_sampling(channel, spec.system),
+        output=analyze_output(channel, spec.system),
+        image=analyze_image(channel, spec.system),
+    )
 
 
 def analyze(spec: Spec) -> SystemAnalysis:
