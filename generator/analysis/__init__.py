@@ -5,6 +5,8 @@ Each concern lives in its own module and returns a frozen result with a
 
 - :mod:`.sampling`  rates, folding and the anti-aliasing filter (input channels)
 - :mod:`.amplitude` range usage, LSB, quantization, jitter and sensor noise, the noise budget
+- :mod:`.output`    hold droop, images and drive level (output channels)
+- :mod:`.image`     pixel pitch, spatial Nyquist and frame size (image channels)
 
 Every figure key is declared once with :func:`figure`, with its label, display
 unit, formula and source; the README table, the JSON contract and the channel
@@ -20,6 +22,8 @@ from typing import Any
 from ..model import Channel, Spec
 from .amplitude import AmplitudeResult, analyze_amplitude
 from .figures import FIGURES, FigureInfo, FigureValue, figure
+from .image import ImageResult, analyze_image
+from .output import OutputResult, analyze_output
 from .sampling import SamplingResult, analyze_sampling
 
 __all__ = [
@@ -41,11 +45,13 @@ class ChannelResult:
     channel: Channel
     sampling: SamplingResult | None = None
     amplitude: AmplitudeResult | None = None
+    output: OutputResult | None = None
+    image: ImageResult | None = None
 
     @property
     def figures(self) -> dict[str, FigureValue]:
         out: dict[str, FigureValue] = {}
-        for part in (self.sampling, self.amplitude):
+        for part in (self.sampling, self.amplitude, self.output, self.image):
             if part is not None:
                 out.update(part.figures())
         return out
@@ -81,6 +87,8 @@ def analyze_channel(channel: Channel, spec: Spec) -> ChannelResult:
         channel=channel,
         sampling=analyze_sampling(channel, spec.system),
         amplitude=analyze_amplitude(channel, spec.system),
+        output=analyze_output(channel, spec.system),
+        image=analyze_image(channel, spec.system),
     )
 
 

@@ -97,7 +97,7 @@ def channel_rule(
 
 def _load_rule_modules() -> None:
     # Imported for their registrations; the order here is the order of `specfold rules`.
-    from . import amplitude, sampling  # noqa: F401
+    from . import amplitude, image, output, safety, sampling  # noqa: F401
 
 
 def apply_waivers(findings: Iterable[Finding], analysis: SystemAnalysis) -> list[Finding]:

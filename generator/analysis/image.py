@@ -1,0 +1,121 @@
+"""Image channels (area and line sensors): pitch, spatial Nyquist, aperture response, frame size.
+
+A line sensor (one row of pixels) samples space only along its line; across it, the image is
+sampled by the motion of the scene at the line rate.  Its "vertical pitch" is therefore the
+pixel height (the active area's height) and its spatial Nyquist frequency is that along the line.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+from ..dsp import imaging as dsp
+from ..model import Channel, System
+from .figures import FigureValue, figure
+
+# Pitches closer than this (relative) count as square: data-sheet areas are often rounded.
+SQUARE_TOLERANCE = 0.005
+
+FRAME_RATE = figure("frame_rate_hz", "Frame (or line) rate", "Hz", "as specified", "requirement")
+PITCH = figure("pixel_pitch_m", "Pixel pitch (the coarser axis; along the line for a line sensor)", "m",
+               "max(width / pixels across, height / pixels down)", "Holst, CCD Arrays (from memory)")
+PITCH_X = figure("pixel_pitch_x_m", "Pixel pitch across", "m", "active width / pixels across",
+                 "Holst, CCD Arrays (from memory)")
+PITCH_Y = figure("pixel_pitch_y_m", "Pixel pitch down (pixel height for a line sensor)", "m",
+                 "active height / pixels down", "Holst, CCD Arrays (from memory)")
+NYQUIST = figure("spatial_nyquist_cycles_per_m", "Spatial Nyquist frequency", "cycles/m",
+                 "1 / (2 p), p = pixel_pitch", "Shannon 1949, in space; Holst (from memory)")
+NYQUIST_X = figure("spatial_nyquist_x_cycles_per_m", "Spatial Nyquist frequency across", "cycles/m",
+                   "1 / (2 p_x)", "Shannon 1949, in space")
+NYQUIST_Y = figure("spatial_nyquist_y_cycles_per_m", "Spatial Nyquist frequency down (area sensors)", "cycles/m",
+                   "1 / (2 p_y)", "Shannon 1949, in space")
+SQUARE = figure("square_pixels", "Pixels are square", "", "|p_x - p_y| <= 0.5 % of the larger", "definition")
+MTF_NYQUIST = figure("pixel_aperture_mtf_at_nyquist", "Full-fill pixel aperture response at spatial Nyquist", "",
+                     "|sinc(f_N p)| = 2/pi", "box aperture; Holst (from memory)")
+MTF_DETAIL = figure("pixel_aperture_mtf_at_detail", "Full-fill pixel aperture response at the required detail",
+                    "", "|sinc(detail p)|", "box aperture; Holst (from memory)")
+FRAME_BITS = figure("frame_bits", "Bits per frame (or line), packed", "bit", "W x H x N", "arithmetic")
+FRAME_BITS_STORED = figure("frame_bits_stored", "Bits per frame (or line) in storage containers", "bit",
+                           "W x H x container_bits", "arithmetic")
+DATA_RATE = figure("image_data_rate_bps", "Image stream, packed", "bit/s", "frame_bits x frame rate",
+                   "arithmetic")
+DATA_RATE_STORED = figure("image_data_rate_stored_bps", "Image stream in storage containers", "bit/s",
+                          "frame_bits_stored x frame rate", "arithmetic")
+
+
+@dataclass(frozen=True)
+class ImageResult:
+    pixels: tuple[int, int]
+    line_sensor: bool
+    frame_rate_hz: float | None
+    pixel_pitch_m: float
+    pixel_pitch_x_m: float
+    pixel_pitch_y_m: float
+    spatial_nyquist_cycles_per_m: float
+    spatial_nyquist_x_cycles_per_m: float
+    spatial_nyquist_y_cycles_per_m: float | None  # None for a line sensor
+    square_pixels: bool
+    pixel_aperture_mtf_at_nyquist: float
+    pixel_aperture_mtf_at_detail: float | None
+    frame_bits: int | None
+    frame_bits_stored: int | None
+    data_rate_bps: float | None
+    data_rate_stored_bps: float | None
+
+    def figures(self) -> dict[str, FigureValue]:
+        return {
+            FRAME_RATE: self.frame_rate_hz,
+            PITCH: self.pixel_pitch_m,
+            PITCH_X: self.pixel_pitch_x_m,
+            PITCH_Y: self.pixel_pitch_y_m,
+            NYQUIST: self.spatial_nyquist_cycles_per_m,
+            NYQUIST_X: self.spatial_nyquist_x_cycles_per_m,
+            NYQUIST_Y: self.spatial_nyquist_y_cycles_per_m,
+            SQUARE: self.square_pixels,
+            MTF_NYQUIST: self.pixel_aperture_mtf_at_nyquist,
+            MTF_DETAIL: self.pixel_aperture_mtf_at_detail,
+            FRAME_BITS: self.frame_bits,
+            FRAME_BITS_STORED: self.frame_bits_stored,
+            DATA_RATE: self.data_rate_bps,
+            DATA_RATE_STORED: self.data_rate_stored_bps,
+        }
+
+
+def analyze_image(channel: Channel, system: System) -> ImageResult | None:
+    """Pitch, spatial Nyquist, aperture response and frame size of an image channel."""
+    pixels, area = channel.sensor.pixels, channel.sensor.active_area_m
+    if channel.kind != "image" or pixels is None or area is None or min(pixels) < 1 or min(area) <= 0.0:
+        return None
+    w, h = pixels
+    line = h == 1
+    px = dsp.pixel_pitch(area[0], w)
+    py = dsp.pixel_pitch(area[1], h)  # for a line sensor: the pixel height
+    nyq_x = dsp.spatial_nyquist(px)
+    nyq_y = None if line else dsp.spatial_nyquist(py)
+    pitch = px if line else max(px, py)
+    nyquist = dsp.spatial_nyquist(pitch)
+    detail = channel.signal.detail_cycles_per_m
+    conv = channel.conversion
+    bits = None if conv.bits is None else dsp.frame_bits(w, h, conv.bits)
+    stored = None if conv.container_bits is None else dsp.frame_bits(w, h, conv.container_bits)
+    rate = conv.rate
+    return ImageResult(
+        pixels=(w, h),
+        line_sensor=line,
+        frame_rate_hz=rate,
+        pixel_pitch_m=pitch,
+        pixel_pitch_x_m=px,
+        pixel_pitch_y_m=py,
+        spatial_nyquist_cycles_per_m=nyquist,
+        spatial_nyquist_x_cycles_per_m=nyq_x,
+        spatial_nyquist_y_cycles_per_m=nyq_y,
+        square_pixels=math.isclose(px, py, rel_tol=SQUARE_TOLERANCE),
+        # full fill: the aperture is the pitch along the axis that sets the Nyquist frequency
+        pixel_aperture_mtf_at_nyquist=dsp.box_aperture_mtf(nyquist, pitch),
+        pixel_aperture_mtf_at_detail=None if detail is None else dsp.box_aperture_mtf(detail, pitch),
+        frame_bits=bits,
+        frame_bits_stored=stored,
+        data_rate_bps=None if bits is None or rate is None else dsp.stream_rate(bits, rate),
+        data_rate_stored_bps=None if stored is None or rate is None else dsp.stream_rate(stored, rate),
+    )

@@ -1,0 +1,172 @@
+"""Output (D/A) channels: the hold's droop, images and their rejection, the drive level.
+
+Sign conventions: ``zoh_droop_db`` is the hold's gain at the band top in dB (0 or negative,
+-0.35 is a loss of 0.35 dB), as data sheets and handbooks tabulate it; every ``*_attenuation_db``,
+``image_rejection_db`` and ``passband_error_db`` is a positive number of dB of loss.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+from scipy import signal as sps
+
+from ..dsp import reconstruction as rec
+from ..model import Channel, Filter, System
+from .figures import FigureValue, figure
+
+ZOH_DROOP = figure(
+    "zoh_droop_db", "Hold droop at the band top (gain; 0 after ideal sinc compensation)", "dB",
+    "20 log10 |sinc(f_high / fs)|; 0 with sinc_compensation (ideal inverse-sinc correction leaves no residual)",
+    "ADI MT-017; Oppenheim & Schafer ch. 4")
+ZOH_DROOP_RAW = figure(
+    "zoh_droop_uncorrected_db", "Hold droop at the band top before any sinc compensation (gain)", "dB",
+    "20 log10 |sinc(f_high / fs)|", "ADI MT-017")
+FIRST_IMAGE = figure("first_image_hz", "First image of the band top", "Hz", "fs - f_high", "ADI MT-017")
+HOLD_IMAGE = figure(
+    "hold_image_attenuation_db", "Hold's suppression of the first image below the tone", "dB",
+    "20 log10((fs - f_high) / f_high) (0 without a hold)", "ADI MT-017; sin(pi(1 - x)) = sin(pi x)")
+FILTER_IMAGE = figure(
+    "filter_image_attenuation_db", "Reconstruction filter's attenuation at the first image", "dB",
+    "-20 log10 |H(j 2 pi (fs - f_high))|", "scipy.signal analog prototype; Williams & Taylor")
+IMAGE_REJECTION = figure(
+    "image_rejection_db", "First image below the tone, hold and filter together", "dB",
+    "hold_image_attenuation + filter_image_attenuation", "ADI MT-017")
+REQUIRED_IMAGE = figure(
+    "required_image_rejection_db", "Required suppression of the first image", "dB",
+    "[signal] image_rejection, else the DAC's floor 20 log10(2^N sqrt(1.5)) = 6.02 N + 1.76", "ADI MT-001")
+FILTER_NEEDED = figure(
+    "filter_needed_at_image_db", "Attenuation the filter must add at the first image", "dB",
+    "required - hold_image_attenuation", "ADI MT-017")
+FILTER_DROOP = figure(
+    "filter_droop_db", "Reconstruction filter's loss at the band top", "dB",
+    "-20 log10 |H(j 2 pi f_high)|", "scipy.signal analog prototype; Williams & Taylor")
+PASSBAND_ERROR = figure(
+    "passband_error_db", "Output loss at the band top, hold and filter together", "dB",
+    "-zoh_droop + filter_droop", "ADI MT-017")
+OUTPUT_PEAK = figure(
+    "output_peak_volts", "Largest drive the output can produce", "V",
+    "full-scale peak x gain", "definition")
+
+
+@dataclass(frozen=True)
+class OutputResult:
+    rate_hz: float
+    band_high_hz: float
+    hold: str
+    sinc_compensation: bool
+    zoh_droop_db: float | None
+    zoh_droop_uncorrected_db: float | None
+    first_image_hz: float
+    hold_image_attenuation_db: float
+    filter_image_attenuation_db: float | None  # None: no designed filter (treated as 0 dB)
+    image_rejection_db: float
+    required_image_rejection_db: float | None
+    filter_needed_at_image_db: float | None
+    filter_droop_db: float | None
+    passband_error_db: float
+    flatness_db: float
+    output_peak_volts: float | None
+
+    def figures(self) -> dict[str, FigureValue]:
+        return {
+            ZOH_DROOP: self.zoh_droop_db,
+            ZOH_DROOP_RAW: self.zoh_droop_uncorrected_db,
+            FIRST_IMAGE: self.first_image_hz,
+            HOLD_IMAGE: self.hold_image_attenuation_db,
+            FILTER_IMAGE: self.filter_image_attenuation_db,
+            IMAGE_REJECTION: self.image_rejection_db,
+            REQUIRED_IMAGE: self.required_image_rejection_db,
+            FILTER_NEEDED: self.filter_needed_at_image_db,
+            FILTER_DROOP: self.filter_droop_db,
+            PASSBAND_ERROR: self.passband_error_db,
+            OUTPUT_PEAK: self.output_peak_volts,
+        }
+
+
+def _filter_loss_db(filt: Filter, f_hz: float) -> float:
+    """Loss in dB (positive) of the analog filter ``filt`` at ``f_hz``, relative to its passband peak.
+
+    Designed as an analog prototype at a corner of 1 rad/s and evaluated at f / corner (scipy.signal,
+    ``analog=True``).  ``corner`` is the -3 dB point for butterworth and bessel (bessel with
+    ``norm='mag'``), the ripple-band edge for chebyshev1 and elliptic, the stopband edge for
+    chebyshev2.  Requires ``filt.order`` and ``filt.corner``.
+    """
+    # replace with dsp.filters.attenuation_db at integration
+    assert filt.order is not None and filt.corner is not None
+    n, rp, rs = filt.order, filt.ripple_db, filt.stopband_db
+    if filt.family == "butterworth":
+        z, p, k = sps.butter(n, 1.0, analog=True, output="zpk")
+    elif filt.family == "bessel":
+        z, p, k = sps.bessel(n, 1.0, analog=True, output="zpk", norm="mag")
+    elif filt.family == "chebyshev1":
+        z, p, k = sps.cheby1(n, rp, 1.0, analog=True, output="zpk")
+    elif filt.family == "chebyshev2":
+        z, p, k = sps.cheby2(n, rs, 1.0, analog=True, output="zpk")
+    elif filt.family == "elliptic":
+        z, p, k = sps.ellip(n, rp, rs, 1.0, analog=True, output="zpk")
+    else:
+        raise ValueError(f"unknown filter family {filt.family}")
+    _, h = sps.freqs_zpk(z, p, k, worN=np.array([f_hz / filt.corner]))
+    mag = float(abs(h[0]))
+    if mag == 0.0:
+        return math.inf
+    return max(0.0, -20.0 * math.log10(mag))
+
+
+def filter_loss_db(filt: Filter | None, f_hz: float) -> float | None:
+    """Loss of a channel's reconstruction filter at ``f_hz``; None when no filter is designed."""
+    if filt is None or filt.order is None or filt.corner is None:
+        return None
+    return _filter_loss_db(filt, f_hz)
+
+
+def image_rejection_at(channel: Channel, rate_hz: float) -> float:
+    """Image rejection (hold + filter, dB) the channel would have at ``rate_hz``; for the rule's fix."""
+    assert channel.signal.band is not None
+    f_high = channel.signal.band[1]
+    hold = rec.hold_image_attenuation_db(f_high, rate_hz) if channel.conversion.hold == "zero-order" else 0.0
+    loss = filter_loss_db(channel.filter, rate_hz - f_high)
+    return hold + (loss or 0.0)
+
+
+def analyze_output(channel: Channel, system: System) -> OutputResult | None:
+    """Hold, image and drive-level figures of an output channel with a band and a rate."""
+    band = channel.signal.band
+    conv = channel.conversion
+    rate = conv.rate
+    if channel.kind != "output" or band is None or rate is None or not 0.0 < band[1] < rate:
+        return None
+    f_high = band[1]
+    zero_order = conv.hold == "zero-order"
+    raw = rec.hold_droop_db(f_high, rate) if zero_order else None
+    droop = (rec.compensated_droop_db(f_high, rate) if conv.sinc_compensation else raw) if zero_order else None
+    hold_image = rec.hold_image_attenuation_db(f_high, rate) if zero_order else 0.0
+    first = rec.first_image(f_high, rate)
+    filt_image = filter_loss_db(channel.filter, first)
+    filt_droop = filter_loss_db(channel.filter, f_high)
+    required = channel.signal.image_rejection_db
+    if required is None and conv.bits is not None:
+        required = rec.dac_floor_db(conv.bits)
+    needed = None if required is None else required - hold_image
+    peak = None if conv.full_scale is None else conv.full_scale.peak * conv.gain
+    return OutputResult(
+        rate_hz=rate,
+        band_high_hz=f_high,
+        hold=conv.hold,
+        sinc_compensation=conv.sinc_compensation,
+        zoh_droop_db=droop,
+        zoh_droop_uncorrected_db=raw,
+        first_image_hz=first,
+        hold_image_attenuation_db=hold_image,
+        filter_image_attenuation_db=filt_image,
+        image_rejection_db=hold_image + (filt_image or 0.0),
+        required_image_rejection_db=required,
+        filter_needed_at_image_db=needed,
+        filter_droop_db=filt_droop,
+        passband_error_db=-(droop or 0.0) + (filt_droop or 0.0),
+        flatness_db=channel.signal.flatness_db,
+        output_peak_volts=peak,
+    )
