@@ -65,7 +65,8 @@ def caution(result: ChannelResult, analysis: SystemAnalysis) -> Iterator[Hit]:
         return
     ch = result.channel
     what = "drive" if ch.kind == "output" else "measurement"
-    message = (f"caution: {'; '.join(reasons)}. The {what} needs equipment rated for it, isolation and "
+    reasons[0] = reasons[0][:1].upper() + reasons[0][1:]
+    message = (f"{'; '.join(reasons)}. The {what} needs equipment rated for it, isolation and "
                "interlocks, and work on it needs the site's safe-work procedures; local codes and licensed "
                "practice govern, not this tool")
     if ch.safety.note:
