@@ -39,6 +39,10 @@ def _duration(seconds: float) -> str:
     return format_quantity(seconds, "s")
 
 
+def _ppm(ppm: float) -> str:
+    return f"{ppm:+.1f} ppm" if abs(ppm) < 1e5 else f"{ppm:+.4g} ppm"
+
+
 def _deg(rad: float) -> str:
     return f"{math.degrees(rad):.3g}°"
 
@@ -98,7 +102,8 @@ def shared_rate(analysis: SystemAnalysis) -> Iterator[Finding]:
             continue
         groups = {r: [c for c, x in zip(load.channels, load.rates_hz, strict=True) if x == r]
                   for r in load.distinct_rates}
-        common = max(groups, key=lambda r: (len(groups[r]), r))
+        default = analysis.spec.system.converters[load.id].rate
+        common = default if default in groups else max(groups, key=lambda r: (len(groups[r]), r))
         odd = [c for r, ids in groups.items() if r != common for c in ids]
         first = analysis.spec.channel(odd[0])
         listing = "; ".join(f"{_sps(r)}: {', '.join(ids)}" for r, ids in groups.items())
@@ -116,7 +121,7 @@ def _clock_message(c: ClockCheck) -> str:
             f"({c.allowed}): the ratio is {ratio:.6g}")
     if c.nearest_divider is not None and c.nearest_hz is not None and c.error_ppm is not None:
         text += (f"; the nearest achievable rate is {_hz(c.nearest_hz, 7)} (/{c.nearest_divider}, "
-                 f"{c.error_ppm:+.1f} ppm): use it, or a clock that divides to {_hz(c.target_hz, 7)}")
+                 f"{_ppm(c.error_ppm)}): use it, or a clock that divides to {_hz(c.target_hz, 7)}")
     else:
         text += "; no allowed divider exists: change the allowed dividers or the clock"
     return text
@@ -252,7 +257,7 @@ def stated_figure_mismatch(result: ChannelResult, analysis: SystemAnalysis) -> I
         err = (said - computed) / computed
         if abs(err) > STATED_TOLERANCE:
             yield Hit(f"stated {name} {format_quantity(said, dim)} differs from the computed "
-                      f"{format_quantity(computed, dim)} by {format_percent(err)}; state "
+                      f"{format_quantity(computed, dim)} by {'+' if err > 0 else ''}{format_percent(err)}; state "
                       f"{format_quantity(computed, dim)}, or correct the settings it was derived from", path)
 
 
