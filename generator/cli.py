@@ -10,15 +10,18 @@ Exit codes
 from __future__ import annotations
 
 import argparse
+import os
 import sys
+import tempfile
 from collections.abc import Sequence
 from pathlib import Path
 
 from . import __version__
+from . import diff as spec_diff
 from .analysis import SystemAnalysis, analyze
 from .errors import SpecError, SpecErrors
 from .load import load_spec
-from .report import to_json, to_text
+from .report import to_json, to_junit, to_sarif, to_text
 from .rules import SEVERITY_RANK, Finding, all_rules, run_rules
 
 EXIT_OK = 0
@@ -44,9 +47,18 @@ def _parser() -> argparse.ArgumentParser:
 
     check = sub.add_parser("check", help="load the specs, compute every figure, report findings")
     check.add_argument("specs", nargs="?", default=DEFAULT_SPECS, help="spec folder (default: specs)")
-    check.add_argument("--format", choices=("text", "json"), default="text", help="report format")
+    check.add_argument("--format", choices=("text", "json", "junit", "sarif"), default="text",
+                       help="report format: text, the JSON contract, JUnit XML or SARIF 2.1.0")
     check.add_argument("--fail-on", choices=("error", "warning", "never"), default="error",
                        help="lowest severity that makes the exit code 1 (default: error)")
+
+    diff = sub.add_parser("diff", help="compare two spec trees (folders or git revisions)")
+    diff.add_argument("base", help="a spec folder, a git revision (its --specs folder), or REV:path")
+    diff.add_argument("head", nargs="?", default=None, help="the same; default: the --specs folder as it is now")
+    diff.add_argument("--specs", default=DEFAULT_SPECS, help="spec folder inside the repository (default: specs)")
+    diff.add_argument("--format", choices=("text", "json", "markdown"), default="text", help="report format")
+    diff.add_argument("--fail-on", choices=("error", "warning", "never"), default="error",
+                      help="exit 1 when the head introduces a finding at or above this severity (default: error)")
 
     rules = sub.add_parser("rules", help="list the rules, or explain one")
     rules.add_argument("rule", nargs="?", help="a rule id")
@@ -65,12 +77,38 @@ def fails(findings: Sequence[Finding], fail_on: str) -> bool:
     return any(not f.waived and SEVERITY_RANK[f.severity] <= limit for f in findings)
 
 
+def _repo_prefix(specs: str) -> str:
+    """The specs folder as CI tools expect it in reports: relative to the working folder, posix."""
+    path = Path(specs).resolve()
+    try:
+        return path.relative_to(Path.cwd().resolve()).as_posix()
+    except ValueError:
+        return Path(os.path.relpath(path)).as_posix()
+
+
 def _cmd_check(args: argparse.Namespace) -> int:
     analysis = _load(args.specs)
     findings = run_rules(analysis)
-    out = to_json(analysis, findings) if args.format == "json" else to_text(analysis, findings)
+    if args.format == "json":
+        out = to_json(analysis, findings)
+    elif args.format == "junit":
+        out = to_junit(analysis, findings, args.fail_on, _repo_prefix(args.specs))
+    elif args.format == "sarif":
+        out = to_sarif(analysis, findings, _repo_prefix(args.specs))
+    else:
+        out = to_text(analysis, findings)
     sys.stdout.write(out)
     return EXIT_FINDINGS if fails(findings, args.fail_on) else EXIT_OK
+
+
+def _cmd_diff(args: argparse.Namespace) -> int:
+    with tempfile.TemporaryDirectory(prefix="specfold-diff-") as scratch:
+        base = spec_diff.load_side(args.base, Path(scratch) / "base", args.specs)
+        head = spec_diff.load_side(args.head or args.specs, Path(scratch) / "head", args.specs)
+        result = spec_diff.compare(base, head)
+    render = {"json": spec_diff.to_json, "markdown": spec_diff.to_markdown}.get(args.format, spec_diff.to_text)
+    sys.stdout.write(render(result))
+    return EXIT_FINDINGS if spec_diff.introduces(result, args.fail_on) else EXIT_OK
 
 
 def _cmd_rules(args: argparse.Namespace) -> int:
@@ -88,7 +126,7 @@ def _cmd_rules(args: argparse.Namespace) -> int:
     return EXIT_OK
 
 
-COMMANDS = {"check": _cmd_check, "rules": _cmd_rules}
+COMMANDS = {"check": _cmd_check, "diff": _cmd_diff, "rules": _cmd_rules}
 
 
 def main(argv: Sequence[str] | None = None) -> int:

@@ -1,17 +1,29 @@
-"""Findings and figures -> text and the JSON contract (format 1).
+"""Findings and figures -> text, the JSON contract (format 1), JUnit XML and SARIF 2.1.0.
 
 Pure functions returning strings; the CLI prints them.
+
+JUnit XML: one test suite; one test case per (channel, rule) pair for every channel and every
+registered rule (class name = the channel file as given to CI, name = the rule id), plus one
+``system`` case per rule for findings that name no channel.  A case fails for an unwaived finding
+at or above the fail-on level, is skipped (with the waiver's reason) when its only findings are
+waived, and passes otherwise; findings below the fail-on level show in the case's system-out.
+
+SARIF 2.1.0: one run; ``tool.driver.rules`` is the rule registry; each finding is a result at its
+file (relative to the repository: the specs folder prefix included) and line; waived findings
+carry an external suppression whose justification is the waiver's reason.
 """
 
 from __future__ import annotations
 
 import json
 import math
+import xml.etree.ElementTree as ET
 from collections.abc import Iterable
 from typing import Any
 
+from . import __version__
 from .analysis import SystemAnalysis
-from .rules import Finding, channel_status
+from .rules import SEVERITY_RANK, Finding, all_rules, channel_status
 
 JSON_FORMAT = 1
 
@@ -40,6 +52,15 @@ def finding_dict(f: Finding) -> dict[str, Any]:
     }
 
 
+def _budget_of(budgets: Iterable[Any], item_id: str) -> dict[str, Any]:
+    for b in budgets:
+        if b.id == item_id:
+            out: dict[str, Any] = b.as_dict()
+            out.pop("id")
+            return out
+    return {}
+
+
 def spec_document(analysis: SystemAnalysis, findings: list[Finding]) -> dict[str, Any]:
     """The JSON contract shared by ``check --format json`` and the site's data/spec.json."""
     system = analysis.spec.system
@@ -51,11 +72,17 @@ def spec_document(analysis: SystemAnalysis, findings: list[Finding]) -> dict[str
             "totals": analysis.totals(),
             "converters": [
                 {"id": c.id, "type": c.type, "architecture": c.architecture, "bits": c.bits,
-                 "sampling": c.sampling, "max_rate_hz": c.max_rate}
+                 "sampling": c.sampling, "max_rate_hz": c.max_rate, "clock": c.clock, "link": c.link,
+                 **_budget_of(analysis.budgets.converters, c.id)}
                 for c in system.converters.values()
             ],
-            "links": [{"id": lk.id, "capacity_bps": lk.capacity_bps} for lk in system.links.values()],
-            "stores": [{"id": s.id, "capacity_bytes": s.capacity_bytes} for s in system.stores.values()],
+            "clocks": [b.as_dict() for b in analysis.budgets.clocks],
+            "links": [{"id": lk.id, "capacity_bps": lk.capacity_bps, "overhead": lk.overhead,
+                       "headroom": lk.headroom, **_budget_of(analysis.budgets.links, lk.id)}
+                      for lk in system.links.values()],
+            "stores": [{"id": s.id, "capacity_bytes": s.capacity_bytes, **_budget_of(analysis.budgets.stores, s.id)}
+                       for s in system.stores.values()],
+            "groups": [b.as_dict() for b in analysis.budgets.groups],
         },
         "channels": [
             {
@@ -108,3 +135,101 @@ def to_text(analysis: SystemAnalysis, findings: list[Finding]) -> str:
         f"{c['info']} note(s), {c['waived']} waived"
     )
     return "\n".join(lines) + "\n"
+
+
+# ------------------------------------------------------------------ merge-gate formats
+
+SARIF_SCHEMA = "https://docs.oasis-open.org/sarif/sarif/v2.1.0/errata01/os/schemas/sarif-schema-2.1.0.json"
+SARIF_LEVEL = {"error": "error", "warning": "warning", "info": "note"}
+
+
+def _uri(prefix: str, file: str) -> str:
+    prefix = prefix.strip("/").replace("\\", "/")
+    return f"{prefix}/{file}" if prefix and prefix != "." else file
+
+
+def to_sarif(analysis: SystemAnalysis, findings: list[Finding], prefix: str = "specs") -> str:
+    """SARIF 2.1.0 log of the findings; ``prefix`` is the specs folder relative to the repository."""
+    rules = all_rules()
+    index = {r.id: i for i, r in enumerate(rules)}
+    results = []
+    for f in findings:
+        result: dict[str, Any] = {
+            "ruleId": f.rule,
+            "level": SARIF_LEVEL[f.severity],
+            "message": {"text": f.message},
+            "locations": [{"physicalLocation": {
+                "artifactLocation": {"uri": _uri(prefix, f.file)},
+                "region": {"startLine": max(f.line, 1)},
+            }}],
+        }
+        if f.rule in index:
+            result["ruleIndex"] = index[f.rule]
+        if f.channels:
+            result["properties"] = {"channels": list(f.channels)}
+        if f.waived:
+            result["suppressions"] = [{"kind": "external", "justification": f.waiver_reason}]
+        results.append(result)
+    log = {
+        "$schema": SARIF_SCHEMA,
+        "version": "2.1.0",
+        "runs": [{
+            "tool": {"driver": {
+                "name": "specfold",
+                "version": __version__,
+                "rules": [{
+                    "id": r.id,
+                    "name": r.title,
+                    "shortDescription": {"text": r.title},
+                    "fullDescription": {"text": r.explanation},
+                    "defaultConfiguration": {"level": SARIF_LEVEL[r.severity]},
+                } for r in rules],
+            }},
+            "results": results,
+        }],
+    }
+    return json.dumps(log, indent=2, ensure_ascii=False) + "\n"
+
+
+def _fails(f: Finding, fail_on: str) -> bool:
+    return not f.waived and fail_on != "never" and SEVERITY_RANK[f.severity] <= SEVERITY_RANK[fail_on]
+
+
+def to_junit(analysis: SystemAnalysis, findings: list[Finding], fail_on: str = "error",
+             prefix: str = "specs") -> str:
+    """JUnit XML: a test case per (channel, rule); see the module docstring for what fails."""
+    rules = [r.id for r in all_rules()]
+    subjects = [(r.channel.id, _uri(prefix, r.channel.source.file)) for r in analysis.channels]
+    by_case: dict[tuple[str, str], list[Finding]] = {}
+    for f in findings:
+        for cid in f.channels or ("",):
+            by_case.setdefault((cid, f.rule), []).append(f)
+    if any(cid == "" for cid, _ in by_case):
+        subjects.append(("", _uri(prefix, "system.toml")))
+    suite = ET.Element("testsuite", name="specfold check")
+    n = failures = skipped = 0
+    for cid, classname in subjects:
+        for rule in rules:
+            case = ET.SubElement(suite, "testcase", classname=classname, name=f"{cid or 'system'} {rule}")
+            n += 1
+            found = by_case.get((cid, rule), [])
+            failing = [f for f in found if _fails(f, fail_on)]
+            if failing:
+                failures += 1
+                el = ET.SubElement(case, "failure", message=failing[0].message, type=failing[0].severity)
+                el.text = "\n".join(f"{f.file}:{f.line}: {f.severity} [{f.rule}] {f.message}" for f in failing)
+            elif found and all(f.waived for f in found):
+                skipped += 1
+                ET.SubElement(case, "skipped", message="waived: " + found[0].waiver_reason)
+            elif found:
+                out = ET.SubElement(case, "system-out")
+                out.text = "\n".join(f"{f.severity} [{f.rule}] {f.message}" for f in found)
+    suite.set("tests", str(n))
+    suite.set("failures", str(failures))
+    suite.set("errors", "0")
+    suite.set("skipped", str(skipped))
+    root = ET.Element("testsuites", name="specfold", tests=str(n), failures=str(failures), errors="0",
+                      skipped=str(skipped))
+    root.append(suite)
+    ET.indent(root)
+    return '<?xml version="1.0" encoding="UTF-8"?>\n' + ET.tostring(root, encoding="unicode") + "\n"

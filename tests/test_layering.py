@@ -15,9 +15,10 @@ FORBIDDEN = {
     "model": {"load", "dsp", "analysis", "rules", "report", "cli", "site"},
     "load": {"dsp", "analysis", "rules", "report", "cli", "site"},
     "dsp": {"quantities", "schema", "model", "load", "analysis", "rules", "report", "cli", "site"},
-    "analysis": {"load", "rules", "report", "cli", "site"},
-    "rules": {"load", "report", "cli", "site"},
-    "report": {"cli", "site"},
+    "analysis": {"load", "rules", "report", "cli", "site", "diff"},
+    "rules": {"load", "report", "cli", "site", "diff"},
+    "report": {"cli", "site", "diff"},
+    "diff": {"cli", "site"},
 }
 
 

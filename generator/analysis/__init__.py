@@ -7,6 +7,7 @@ Each concern lives in its own module and returns a frozen result with a
 - :mod:`.amplitude` range usage, LSB, quantization, jitter and sensor noise, the noise budget
 - :mod:`.output`    hold droop, images and drive level (output channels)
 - :mod:`.image`     pixel pitch, spatial Nyquist and frame size (image channels)
+- :mod:`.budgets`   data rates per channel; converter, clock, link, store and group budgets
 
 Every figure key is declared once with :func:`figure`, with its label, display
 unit, formula and source; the README table, the JSON contract and the channel
@@ -16,11 +17,12 @@ pages all read that registry.
 from __future__ import annotations
 
 from collections.abc import Mapping
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from typing import Any
 
 from ..model import Channel, Spec
 from .amplitude import AmplitudeResult, analyze_amplitude
+from .budgets import Budgets, ChannelBudget, analyze_budgets
 from .figures import FIGURES, FigureInfo, FigureValue, figure
 from .image import ImageResult, analyze_image
 from .output import OutputResult, analyze_output
@@ -28,6 +30,7 @@ from .sampling import SamplingResult, analyze_sampling
 
 __all__ = [
     "FIGURES",
+    "Budgets",
     "ChannelResult",
     "FigureInfo",
     "FigureValue",
@@ -47,11 +50,12 @@ class ChannelResult:
     amplitude: AmplitudeResult | None = None
     output: OutputResult | None = None
     image: ImageResult | None = None
+    budget: ChannelBudget | None = None
 
     @property
     def figures(self) -> dict[str, FigureValue]:
         out: dict[str, FigureValue] = {}
-        for part in (self.sampling, self.amplitude, self.output, self.image):
+        for part in (self.sampling, self.amplitude, self.output, self.image, self.budget):
             if part is not None:
                 out.update(part.figures())
         return out
@@ -63,6 +67,7 @@ class SystemAnalysis:
 
     spec: Spec
     channels: tuple[ChannelResult, ...]
+    budgets: Budgets = field(default_factory=lambda: Budgets({}, (), (), (), (), ()))
 
     def result(self, channel_id: str) -> ChannelResult:
         for r in self.channels:
@@ -78,20 +83,32 @@ class SystemAnalysis:
         kinds = {"input": 0, "output": 0, "image": 0}
         for r in self.channels:
             kinds[r.channel.kind] += 1
-        return {"channels": len(self.channels), "channels_by_kind": kinds}
+        b = self.budgets
+        return {
+            "channels": len(self.channels),
+            "channels_by_kind": kinds,
+            "data_rate_bps": sum(x.data_rate_bps for x in b.channels.values()),
+            "payload_rate_bps": sum(x.payload_rate_bps for x in b.channels.values()),
+            "converter_load": {c.id: c.load for c in b.converters},
+            "link_utilisation": {lk.id: lk.utilisation for lk in b.links},
+            "store_utilisation": {s.id: s.utilisation for s in b.stores},
+        }
 
 
-def analyze_channel(channel: Channel, spec: Spec) -> ChannelResult:
+def analyze_channel(channel: Channel, spec: Spec, budgets: Budgets | None = None) -> ChannelResult:
     """Compute every figure that follows from one channel's requirement."""
+    budget = budgets.channels.get(channel.id) if budgets is not None else None
     return ChannelResult(
         channel=channel,
         sampling=analyze_sampling(channel, spec.system),
         amplitude=analyze_amplitude(channel, spec.system),
         output=analyze_output(channel, spec.system),
         image=analyze_image(channel, spec.system),
+        budget=budget,
     )
 
 
 def analyze(spec: Spec) -> SystemAnalysis:
-    """Analyse every channel of a spec."""
-    return SystemAnalysis(spec, tuple(analyze_channel(ch, spec) for ch in spec.channels))
+    """Analyse every channel of a spec, then the budgets of what they share."""
+    budgets = analyze_budgets(spec)
+    return SystemAnalysis(spec, tuple(analyze_channel(ch, spec, budgets) for ch in spec.channels), budgets)

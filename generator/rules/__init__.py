@@ -11,6 +11,7 @@ it a failing and a passing fixture in the tests.
 
 from __future__ import annotations
 
+import re
 from collections.abc import Callable, Iterable
 from dataclasses import dataclass, replace
 
@@ -97,33 +98,82 @@ def channel_rule(
 
 def _load_rule_modules() -> None:
     # Imported for their registrations; the order here is the order of `specfold rules`.
-    from . import amplitude, image, output, safety, sampling  # noqa: F401
+    from . import amplitude, budgets, image, output, safety, sampling  # noqa: F401
+
+
+def revision_key(revision: str) -> tuple[tuple[int, int | str], ...]:
+    """Natural sort key of a revision: "B" < "C", "9" < "10", "1.2" < "1.10", case ignored."""
+    return tuple((0, int(part)) if part.isdigit() else (1, part)
+                 for part in re.findall(r"\d+|[^\d.\-_ ]+", revision.lower()))
+
+
+def waiver_lapsed(until: str, revision: str) -> bool:
+    """A waiver holds while the system revision sorts before ``until``; from that revision on it lapses.
+
+    Either side empty: the waiver never lapses.  Revisions compare in natural order
+    (:func:`revision_key`).
+    """
+    if not until or not revision:
+        return False
+    return revision_key(revision) >= revision_key(until)
+
+
+def match_waivers(findings: Iterable[Finding], analysis: SystemAnalysis) -> tuple[list[Finding], set[tuple[str, int]]]:
+    """Mark findings covered by a channel's ``[[waiver]]``; also return which waivers matched.
+
+    A waiver matches a finding of its rule on any channel the finding names.  A lapsed waiver
+    still counts as matched (it is not stale) but no longer waives: the finding's message says so.
+    """
+    by_id = analysis.by_id
+    revision = analysis.spec.system.revision
+    used: set[tuple[str, int]] = set()
+    out = []
+    for f in findings:
+        lapsed_note = ""
+        for cid in f.channels:
+            result = by_id.get(cid)
+            if result is None:
+                continue
+            hit = next(((i, w) for i, w in enumerate(result.channel.waivers) if w.rule == f.rule), None)
+            if hit is None:
+                continue
+            i, waiver = hit
+            used.add((cid, i))
+            if waiver_lapsed(waiver.until, revision):
+                lapsed_note = (f" (the waiver on {cid} lapsed at revision {waiver.until}; this is revision "
+                               f"{revision}: renew it with a later `until`, or fix the finding)")
+                continue
+            f = replace(f, waived=True, waiver_reason=waiver.reason)
+            break
+        if not f.waived and lapsed_note:
+            f = replace(f, message=f.message + lapsed_note)
+        out.append(f)
+    return out, used
 
 
 def apply_waivers(findings: Iterable[Finding], analysis: SystemAnalysis) -> list[Finding]:
     """Mark findings covered by a channel's ``[[waiver]]``: still listed, no longer failing."""
-    by_id = analysis.by_id
-    out = []
-    for f in findings:
-        for cid in f.channels:
-            result = by_id.get(cid)
-            waiver = next((w for w in result.channel.waivers if w.rule == f.rule), None) if result else None
-            if waiver is not None:
-                f = replace(f, waived=True, waiver_reason=waiver.reason)
-                break
-        out.append(f)
-    return out
+    return match_waivers(findings, analysis)[0]
 
 
 def run_rules(analysis: SystemAnalysis, only: Iterable[str] | None = None) -> list[Finding]:
-    """Run every registered rule (or only the named ones); findings sorted by place."""
+    """Run every registered rule (or only the named ones); findings sorted by place.
+
+    ``stale-waiver`` runs last, on the other rules' findings, and only when every rule ran
+    (with a subset, waivers of the rules left out would look stale).
+    """
     _load_rule_modules()
+    from .budgets import stale_waivers
+
     wanted = set(only) if only is not None else None
     findings: list[Finding] = []
     for rule in RULES.values():
         if wanted is None or rule.id in wanted:
             findings.extend(rule.check(analysis))
-    return sorted(apply_waivers(findings, analysis), key=Finding.sort_key)
+    marked, used = match_waivers(findings, analysis)
+    if wanted is None:
+        marked.extend(stale_waivers(analysis, used, set(RULES)))
+    return sorted(marked, key=Finding.sort_key)
 
 
 def all_rules() -> list[Rule]:

@@ -1,0 +1,370 @@
+"""Budgets of the shared hardware: converter load, clock division, link and store use, group timing.
+
+Channels contradict each other through what they share.  This module adds up, per converter,
+clock, link, store and timing group, what the channels ask of it; the rules in
+``rules/budgets.py`` compare each total with its limit.  Per channel it gives the data rate
+(samples in their containers) and the payload rate (useful bits).
+
+Definitions used throughout (see the README):
+
+- a channel's data rate is fs x container bits (image channels: frame rate x pixels x container
+  bits); its payload rate uses the converter bits instead of the container;
+- a link carries the data rate of every channel routed over it (input and output), plus the
+  link's protocol overhead, and must stay below capacity x (1 - headroom);
+- a store receives the data rate of every link recording into it (overhead is framing, not
+  stored) for the system's ``record_duration``;
+- a multiplexed converter scans its channels in id order, evenly spread: slot k samples
+  k / (sum of the channel rates) after slot 0;
+- a group's phase error at its band edge is the spread of the members' exact filter phases at
+  f_high, each less 2 pi f x its scan skew.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Mapping
+from dataclasses import dataclass, field
+from types import MappingProxyType
+from typing import Any
+
+from ..dsp import budgets as dsp
+from ..model import Channel, Clock, Converter, Filter, Spec
+from .figures import FigureValue, figure
+
+DATA_RATE = figure("data_rate_bps", "Data rate", "bit/s", "fs x C (image: frame rate x W x H x C)",
+                   "IEC 60908 (fs N channels); containers from the converter")
+PAYLOAD_RATE = figure("payload_rate_bps", "Payload rate", "bit/s", "fs x N (image: frame rate x W x H x N)",
+                      "IEC 60908 (fs N channels)")
+
+
+@dataclass(frozen=True)
+class ChannelBudget:
+    """What one channel puts on the shared hardware."""
+
+    data_rate_bps: float
+    payload_rate_bps: float
+    lsb_volts: float | None = None  # for the stated-figure check
+
+    def figures(self) -> dict[str, FigureValue]:
+        return {DATA_RATE: self.data_rate_bps, PAYLOAD_RATE: self.payload_rate_bps}
+
+
+@dataclass(frozen=True)
+class ConverterLoad:
+    id: str
+    sampling: str
+    channels: tuple[str, ...]
+    rates_hz: tuple[float, ...]  # per channel, same order
+    aggregate_rate_hz: float
+    max_rate_hz: float
+    load: float  # multiplexed: aggregate / max_rate; simultaneous: fastest channel / max_rate
+    inputs: int | None
+    scan_skew_s: Mapping[str, float] = field(default_factory=lambda: MappingProxyType({}))
+
+    @property
+    def distinct_rates(self) -> tuple[float, ...]:
+        return tuple(sorted(set(self.rates_hz)))
+
+    def as_dict(self) -> dict[str, Any]:
+        return {"id": self.id, "sampling": self.sampling, "channels": list(self.channels),
+                "aggregate_rate_hz": self.aggregate_rate_hz, "max_rate_hz": self.max_rate_hz,
+                "load": self.load, "inputs": self.inputs,
+                "scan_skew_s": dict(self.scan_skew_s) if self.sampling == "multiplexed" else {}}
+
+
+@dataclass(frozen=True)
+class ClockCheck:
+    """Whether a rate divides out of its reference (the clock, or a delta-sigma modulator)."""
+
+    subject: str  # "rate" (channels' output rate) or "modulator" (the converter's modulator rate)
+    converter: str
+    clock: str
+    channels: tuple[str, ...]
+    target_hz: float
+    reference_hz: float  # clock frequency, or the modulator rate for a delta-sigma output rate
+    reference: str  # "clock mclk" / "modulator of adc-ds"
+    divider: int | None  # the allowed exact divider, None when there is none
+    nearest_divider: int | None
+    nearest_hz: float | None
+    error_ppm: float | None
+    allowed: str  # the allowed dividers, in words
+
+    @property
+    def ok(self) -> bool:
+        return self.divider is not None
+
+    def as_dict(self) -> dict[str, Any]:
+        return {"subject": self.subject, "converter": self.converter, "clock": self.clock,
+                "channels": list(self.channels), "target_hz": self.target_hz,
+                "reference_hz": self.reference_hz, "divider": self.divider, "ok": self.ok,
+                "nearest_divider": self.nearest_divider, "nearest_hz": self.nearest_hz,
+                "error_ppm": self.error_ppm}
+
+
+@dataclass(frozen=True)
+class LinkBudget:
+    id: str
+    channels: tuple[str, ...]
+    payload_bps: float  # sum of the channels' data rates
+    load_bps: float  # payload x (1 + overhead)
+    capacity_bps: float
+    usable_bps: float  # capacity x (1 - headroom)
+    utilisation: float  # load / capacity
+    limit: float  # 1 - headroom
+    store: str | None
+
+    def as_dict(self) -> dict[str, Any]:
+        return {"id": self.id, "channels": list(self.channels), "payload_bps": self.payload_bps,
+                "load_bps": self.load_bps, "capacity_bps": self.capacity_bps, "usable_bps": self.usable_bps,
+                "utilisation": self.utilisation, "limit": self.limit, "store": self.store}
+
+
+@dataclass(frozen=True)
+class StoreBudget:
+    id: str
+    links: tuple[str, ...]
+    stream_bps: float
+    record_duration_s: float | None
+    bytes_needed: float | None
+    capacity_bytes: float
+    utilisation: float | None
+    holding_time_s: float
+
+    def as_dict(self) -> dict[str, Any]:
+        return {"id": self.id, "links": list(self.links), "stream_bps": self.stream_bps,
+                "record_duration_s": self.record_duration_s, "bytes_needed": self.bytes_needed,
+                "capacity_bytes": self.capacity_bytes, "utilisation": self.utilisation,
+                "holding_time_s": self.holding_time_s}
+
+
+@dataclass(frozen=True)
+class GroupTiming:
+    id: str
+    members: tuple[str, ...]  # members whose phase is known
+    unknown: tuple[str, ...]  # members without a band or a fully specified filter
+    f_hz: float | None  # the band edge the timing is judged at (highest f_high of the members)
+    phases_rad: Mapping[str, float]
+    phase_error_rad: float  # max - min of the members' phases at f_hz
+    skew_s: float  # phase_error / (2 pi f)
+    dc_estimate_rad: float  # the same spread from DC group delays and scan skew only
+    limit_phase_rad: float | None
+    limit_skew_s: float | None
+
+    def as_dict(self) -> dict[str, Any]:
+        return {"id": self.id, "members": list(self.members), "unknown": list(self.unknown), "f_hz": self.f_hz,
+                "phases_rad": dict(self.phases_rad), "phase_error_rad": self.phase_error_rad,
+                "skew_s": self.skew_s, "dc_estimate_rad": self.dc_estimate_rad,
+                "limit_phase_rad": self.limit_phase_rad, "limit_skew_s": self.limit_skew_s}
+
+
+@dataclass(frozen=True)
+class Budgets:
+    channels: Mapping[str, ChannelBudget]
+    converters: tuple[ConverterLoad, ...]
+    clocks: tuple[ClockCheck, ...]
+    links: tuple[LinkBudget, ...]
+    stores: tuple[StoreBudget, ...]
+    groups: tuple[GroupTiming, ...]
+
+    def converter(self, cid: str) -> ConverterLoad:
+        return next(c for c in self.converters if c.id == cid)
+
+    def link(self, lid: str) -> LinkBudget:
+        return next(lk for lk in self.links if lk.id == lid)
+
+    def store(self, sid: str) -> StoreBudget:
+        return next(s for s in self.stores if s.id == sid)
+
+    def group(self, gid: str) -> GroupTiming:
+        return next(g for g in self.groups if g.id == gid)
+
+
+# ------------------------------------------------------------------------ channels
+
+
+def _samples_per_frame(ch: Channel) -> int:
+    if ch.kind == "image" and ch.sensor.pixels is not None:
+        w, h = ch.sensor.pixels
+        return w * h
+    return 1
+
+
+def channel_budget(ch: Channel) -> ChannelBudget | None:
+    """Data and payload rate of one channel; None without a rate or bits."""
+    conv = ch.conversion
+    if conv.rate is None or conv.bits is None:
+        return None
+    container = conv.container_bits or conv.bits
+    n = _samples_per_frame(ch)
+    lsb = dsp.lsb_size(conv.full_scale.width, conv.bits) if conv.full_scale is not None else None
+    return ChannelBudget(dsp.stream_rate(conv.rate * n, container), dsp.payload_rate(conv.rate * n, conv.bits), lsb)
+
+
+# ---------------------------------------------------------------------- converters
+
+
+def _converter_load(conv: Converter, members: list[Channel]) -> ConverterLoad:
+    ids = tuple(ch.id for ch in members)
+    rates = tuple(ch.conversion.rate or 0.0 for ch in members)
+    aggregate = sum(rates)
+    if conv.sampling == "multiplexed":
+        load = dsp.utilisation(aggregate, conv.max_rate)
+        skews = {cid: dsp.scan_skew(k, aggregate) for k, cid in enumerate(ids)} if aggregate > 0 else {}
+    else:
+        load = dsp.utilisation(max(rates, default=0.0), conv.max_rate)
+        skews = {}
+    return ConverterLoad(conv.id, conv.sampling, ids, rates, aggregate, conv.max_rate, load, conv.channels,
+                         MappingProxyType(skews))
+
+
+# -------------------------------------------------------------------------- clocks
+
+
+def _allowed_words(dividers: tuple[int, ...], divider_range: tuple[int, int] | None) -> str:
+    parts = []
+    if dividers:
+        parts.append("one of " + ", ".join(str(d) for d in dividers))
+    if divider_range is not None:
+        parts.append(f"from {divider_range[0]} to {divider_range[1]}")
+    return " and ".join(parts) or "any integer"
+
+
+def _check_division(subject: str, conv: Converter, clock: Clock, channels: tuple[str, ...], target: float,
+                    reference_hz: float, reference: str, dividers: tuple[int, ...],
+                    divider_range: tuple[int, int] | None, allows: Any) -> ClockCheck:
+    exact = dsp.exact_divider(reference_hz, target)
+    divider = exact if exact is not None and allows(exact) else None
+    near = dsp.nearest_divider(reference_hz, target, dividers, divider_range)
+    near_hz = reference_hz / near if near else None
+    return ClockCheck(subject, conv.id, clock.id, channels, target, reference_hz, reference, divider, near, near_hz,
+                      dsp.ppm_error(near_hz, target) if near_hz else None, _allowed_words(dividers, divider_range))
+
+
+def _clock_checks(conv: Converter, clock: Clock, members: list[Channel]) -> list[ClockCheck]:
+    out: list[ClockCheck] = []
+    by_rate: dict[float, list[str]] = {}
+    for ch in members:
+        if ch.conversion.rate:
+            by_rate.setdefault(ch.conversion.rate, []).append(ch.id)
+    via_modulator = conv.is_delta_sigma and conv.modulator_rate is not None
+    if via_modulator and conv.modulator_rate is not None:
+        # common practice: the modulator clock itself is MCLK / N
+        out.append(_check_division("modulator", conv, clock, (), conv.modulator_rate, clock.frequency,
+                                   f"clock {clock.id}", clock.dividers, clock.divider_range, clock.allows))
+    for rate, ids in sorted(by_rate.items()):
+        if via_modulator and conv.modulator_rate is not None:
+            osrs = conv.oversampling_ratios
+
+            def osr_ok(d: int, osrs: tuple[int, ...] = osrs) -> bool:
+                return d in osrs if osrs else d >= 1
+
+            out.append(_check_division("rate", conv, clock, tuple(ids), rate, conv.modulator_rate,
+                                       f"modulator of {conv.id}", osrs, None, osr_ok))
+        else:
+            out.append(_check_division("rate", conv, clock, tuple(ids), rate, clock.frequency, f"clock {clock.id}",
+                                       clock.dividers, clock.divider_range, clock.allows))
+    return out
+
+
+# -------------------------------------------------------------------------- groups
+
+
+def _filter_zpk(filt: Filter) -> dsp.Zpk | None:
+    """Zeros, poles and gain (rad/s) of a channel's analog filter; None when order or corner is missing.
+
+    Replace with dsp.filters.design at integration.  Corner conventions follow the README:
+    -3 dB point (butterworth; bessel with norm='mag'), ripple-band edge (chebyshev1, elliptic),
+    stopband edge (chebyshev2).
+    """
+    from scipy import signal  # local: scipy is slow to import and only groups need it
+
+    if filt.order is None or filt.corner is None:
+        return None
+    n, wc = filt.order, 2.0 * math.pi * filt.corner
+    if filt.family == "butterworth":
+        z, p, k = signal.butter(n, wc, analog=True, output="zpk")
+    elif filt.family == "bessel":
+        z, p, k = signal.bessel(n, wc, analog=True, output="zpk", norm="mag")
+    elif filt.family == "chebyshev1":
+        z, p, k = signal.cheby1(n, filt.ripple_db, wc, analog=True, output="zpk")
+    elif filt.family == "chebyshev2":
+        z, p, k = signal.cheby2(n, filt.stopband_db, wc, analog=True, output="zpk")
+    elif filt.family == "elliptic":
+        z, p, k = signal.ellip(n, filt.ripple_db, filt.stopband_db, wc, analog=True, output="zpk")
+    else:
+        return None
+    return (tuple(complex(x) for x in z), tuple(complex(x) for x in p), float(k))
+
+
+def _group_timing(spec: Spec, gid: str, members: list[Channel], skews: Mapping[str, float]) -> GroupTiming:
+    group = spec.system.groups[gid]
+    known: list[tuple[str, dsp.Zpk | None, float]] = []
+    unknown: list[str] = []
+    for ch in members:
+        zpk = _filter_zpk(ch.filter) if ch.filter is not None else None
+        if ch.signal.band is None or (ch.filter is not None and zpk is None):
+            unknown.append(ch.id)
+        else:
+            known.append((ch.id, zpk, skews.get(ch.id, 0.0)))
+    f = max((spec.channel(cid).signal.band or (0.0, 0.0))[1] for cid, _, _ in known) if known else None
+    phases: dict[str, float] = {}
+    estimates: dict[str, float] = {}
+    if f:
+        _, ref_zpk, ref_t = known[0]
+        for cid, zpk, t in known:
+            # each member against the first: exact phase, and the DC-delay estimate of the same
+            phases[cid] = dsp.phase_difference(zpk, ref_zpk, f, t, ref_t)
+            estimates[cid] = dsp.phase_difference_dc_estimate(zpk, ref_zpk, f) - 2 * math.pi * f * (t - ref_t)
+    spread = max(phases.values()) - min(phases.values()) if phases else 0.0
+    dc_spread = max(estimates.values()) - min(estimates.values()) if estimates else 0.0
+    return GroupTiming(gid, tuple(cid for cid, _, _ in known), tuple(unknown), f, MappingProxyType(phases),
+                       spread, spread / (2 * math.pi * f) if f else 0.0, dc_spread, group.phase_rad, group.skew_s)
+
+
+# ---------------------------------------------------------------------------- all
+
+
+def analyze_budgets(spec: Spec) -> Budgets:
+    """Every budget of the shared hardware, from the loaded spec."""
+    system = spec.system
+    per_channel = {ch.id: b for ch in spec.channels if (b := channel_budget(ch)) is not None}
+
+    on_converter: dict[str, list[Channel]] = {cid: [] for cid in system.converters}
+    for ch in spec.channels:
+        if ch.conversion.converter in on_converter:
+            on_converter[ch.conversion.converter].append(ch)
+    converters = tuple(_converter_load(conv, on_converter[cid]) for cid, conv in sorted(system.converters.items()))
+    skews = {cid: t for c in converters for cid, t in c.scan_skew_s.items()}
+
+    clocks: list[ClockCheck] = []
+    for cid, conv in sorted(system.converters.items()):
+        if conv.clock is not None and conv.clock in system.clocks:
+            clocks.extend(_clock_checks(conv, system.clocks[conv.clock], on_converter[cid]))
+
+    links = []
+    for lid, link in sorted(system.links.items()):
+        ids = tuple(ch.id for ch in spec.channels if ch.conversion.link == lid and ch.id in per_channel)
+        payload = sum(per_channel[cid].data_rate_bps for cid in ids)
+        load = dsp.link_load(payload, link.overhead)
+        links.append(LinkBudget(lid, ids, payload, load, link.capacity_bps,
+                                dsp.usable_capacity(link.capacity_bps, link.headroom),
+                                dsp.utilisation(load, link.capacity_bps), 1.0 - link.headroom, link.store))
+
+    stores = []
+    duration = system.record_duration_s
+    for sid, store in sorted(system.stores.items()):
+        feeding = [lk for lk in links if lk.store == sid]
+        stream = sum(lk.payload_bps for lk in feeding)
+        needed = dsp.record_bytes(stream, duration) if duration is not None else None
+        stores.append(StoreBudget(sid, tuple(lk.id for lk in feeding), stream, duration, needed, store.capacity_bytes,
+                                  dsp.utilisation(needed, store.capacity_bytes) if needed is not None else None,
+                                  dsp.holding_time(store.capacity_bytes, stream)))
+
+    groups = []
+    for gid in sorted(system.groups):
+        members = [ch for ch in spec.channels if ch.match == gid]
+        if members:
+            groups.append(_group_timing(spec, gid, members, skews))
+
+    return Budgets(MappingProxyType(per_channel), converters, tuple(clocks), tuple(links), tuple(stores),
+                   tuple(groups))

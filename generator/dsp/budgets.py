@@ -1,0 +1,194 @@
+"""Budgets of shared hardware: data rates, containers, utilisation, scan skew, clock division,
+storage, and the relative phase of two analog filters.
+
+References
+----------
+[IEC60908] IEC 60908, CD digital audio: the payload of a PCM stream is fs x N x channels.
+[DER]      Derived here: plain arithmetic on rates, bits, bytes and time (units stated per function).
+[CP]       Common practice: a multiplexed converter spreads its conversions evenly over the scan, so
+           neighbouring slots are 1 / (aggregate rate) apart; a delta-sigma modulator clock is an
+           integer division of the master clock (MCLK / N), and the output rate is the modulator
+           rate over an integer oversampling ratio.
+[WT]       Williams & Taylor, *Electronic Filter Design Handbook*: phase of a rational transfer
+           function, phi(w) = arg k + sum arg(jw - z_i) - sum arg(jw - p_i); group delay
+           tau(w) = -dphi/dw = sum -s_i / ((w - w_i)^2 + s_i^2) over poles s_i + j w_i, minus the
+           same sum over zeros.
+[1241]     IEEE Std 1241-2010; W. Kester, Analog Devices MT-001: LSB = FSR / 2^N.
+"""
+
+from __future__ import annotations
+
+import cmath
+import math
+from collections.abc import Sequence
+
+# An analog filter as zeros, poles (rad/s, complex) and gain: the shape scipy.signal returns
+# with output='zpk', analog=True.
+Zpk = tuple[Sequence[complex], Sequence[complex], float]
+
+BITS_PER_BYTE = 8
+
+
+def payload_rate(rate_hz: float, bits: int, channels: int = 1) -> float:
+    """Useful bits per second of a PCM stream: R = fs x N x channels, bit/s [IEC60908].
+
+    CD-DA: 44.1 kHz x 16 bit x 2 = 1,411,200 bit/s.
+    """
+    return rate_hz * bits * channels
+
+
+def stream_rate(rate_hz: float, container_bits: int, channels: int = 1) -> float:
+    """Bits per second as carried and stored, each sample in its container: fs x C x channels [DER]."""
+    return rate_hz * container_bits * channels
+
+
+def container_efficiency(bits: int, container_bits: int) -> float:
+    """Share of a container holding data: eta = N / C (24 bits in 32: 0.75) [DER]."""
+    return bits / container_bits
+
+
+def container_overhead(bits: int, container_bits: int) -> float:
+    """Extra bits per useful bit: (C - N) / N (24 bits in 32: +33.3 %) [DER]."""
+    return (container_bits - bits) / bits
+
+
+def link_load(payload_bps: float, overhead: float) -> float:
+    """Bits per second on the wire: payload x (1 + overhead), overhead a ratio (8 % -> 0.08) [DER]."""
+    return payload_bps * (1.0 + overhead)
+
+
+def usable_capacity(capacity: float, headroom: float) -> float:
+    """Capacity left for traffic once the headroom is kept free: C x (1 - headroom) [DER]."""
+    return capacity * (1.0 - headroom)
+
+
+def utilisation(load: float, capacity: float) -> float:
+    """Load as a share of capacity, U = load / capacity (1.28 = 128 %); infinite on a zero capacity [DER]."""
+    if capacity <= 0.0:
+        return math.inf if load > 0.0 else 0.0
+    return load / capacity
+
+
+def scan_skew(slot: int, aggregate_rate_hz: float) -> float:
+    """Time between the first slot of a multiplexer scan and slot ``slot``: t_k = k / R_agg, seconds [CP].
+
+    ``aggregate_rate_hz`` is the sum of the rates of every channel the converter scans.
+    """
+    return slot / aggregate_rate_hz
+
+
+def exact_divider(clock_hz: float, rate_hz: float, rel_tol: float = 1e-9) -> int | None:
+    """The integer d with clock / d == rate (to ``rel_tol``), else None [DER]."""
+    if rate_hz <= 0.0 or clock_hz <= 0.0:
+        return None
+    d = round(clock_hz / rate_hz)
+    if d >= 1 and math.isclose(clock_hz / d, rate_hz, rel_tol=rel_tol):
+        return d
+    return None
+
+
+def ppm_error(actual: float, target: float) -> float:
+    """Relative error in parts per million: (actual - target) / target x 1e6 [DER]."""
+    return (actual - target) / target * 1e6
+
+
+def nearest_divider(
+    clock_hz: float,
+    target_hz: float,
+    dividers: Sequence[int] = (),
+    divider_range: tuple[int, int] | None = None,
+) -> int | None:
+    """Allowed integer divider d whose rate clock / d is nearest to ``target_hz`` [DER].
+
+    With a list of ``dividers`` the best of them (inside ``divider_range`` if given); otherwise the
+    integers either side of clock / target, clamped to ``divider_range`` (or to d >= 1).
+    Returns None when nothing is allowed.  Ties go to the smaller divider (the higher rate).
+    """
+    lo, hi = divider_range if divider_range is not None else (1, 2**63)
+    lo = max(lo, 1)
+    if hi < lo:
+        return None
+    if dividers:
+        candidates = [d for d in dividers if lo <= d <= hi]
+    else:
+        ideal = clock_hz / target_hz
+        candidates = sorted({min(max(d, lo), hi) for d in (math.floor(ideal), math.ceil(ideal))})
+    if not candidates:
+        return None
+    return min(sorted(candidates), key=lambda d: abs(clock_hz / d - target_hz))
+
+
+def record_bytes(stream_bps: float, duration_s: float) -> float:
+    """Bytes written by a stream in a recording: B = R x T / 8 [DER]."""
+    return stream_bps * duration_s / BITS_PER_BYTE
+
+
+def holding_time(capacity_bytes: float, stream_bps: float) -> float:
+    """How long a store lasts at a stream rate: T = 8 C / R, seconds (infinite for no stream) [DER]."""
+    if stream_bps <= 0.0:
+        return math.inf
+    return capacity_bytes * BITS_PER_BYTE / stream_bps
+
+
+def phase_response(zpk: Zpk, f_hz: float) -> float:
+    """Continuous (unwrapped) phase of an analog filter at ``f_hz``, radians [WT].
+
+    phi(w) = arg k + sum_i arg(jw - z_i) - sum_i arg(jw - p_i), w = 2 pi f.  For poles in the
+    left half plane each term stays inside (-pi/2, pi/2) as w rises from 0, so the sum is the
+    unwrapped phase that starts at arg k at DC; a zero on the j axis adds its true jump of pi
+    only above the zero (beyond any passband edge this is used at).
+    """
+    zeros, poles, gain = zpk
+    jw = 1j * 2.0 * math.pi * f_hz
+    phi = 0.0 if gain >= 0 else math.pi
+    for z in zeros:
+        phi += _arg_from(jw, complex(z))
+    for p in poles:
+        phi -= _arg_from(jw, complex(p))
+    return phi
+
+
+def _arg_from(jw: complex, root: complex) -> float:
+    # arg(jw - r) measured so that a left-half-plane root gives a term in (-pi/2, pi/2)
+    d = jw - root
+    if d.real >= 0.0:
+        return cmath.phase(d)
+    # right-half-plane or j-axis root above w: fold into a continuous branch
+    return math.atan(d.imag / d.real) if d.real != 0.0 else math.copysign(math.pi / 2, d.imag)
+
+
+def group_delay_dc(zpk: Zpk) -> float:
+    """Group delay at DC, tau(0) = sum_p -s_p / |p|^2 - sum_z -s_z / |z|^2 over real parts s, seconds [WT]."""
+    zeros, poles, _ = zpk
+    tau = sum(-complex(p).real / abs(complex(p)) ** 2 for p in poles)
+    tau -= sum(-complex(z).real / abs(complex(z)) ** 2 for z in zeros if abs(complex(z)) > 0)
+    return tau
+
+
+def phase_difference(a: Zpk | None, b: Zpk | None, f_hz: float, delay_a_s: float = 0.0,
+                     delay_b_s: float = 0.0) -> float:
+    """Phase of channel a minus channel b at ``f_hz``, radians [WT], [CP].
+
+    Each channel's phase is its filter's exact phase (none: 0) minus 2 pi f t for a sampling
+    delay t (multiplexer scan skew): dphi = (phi_a - 2 pi f t_a) - (phi_b - 2 pi f t_b).
+    """
+    w = 2.0 * math.pi * f_hz
+    pa = (phase_response(a, f_hz) if a is not None else 0.0) - w * delay_a_s
+    pb = (phase_response(b, f_hz) if b is not None else 0.0) - w * delay_b_s
+    return pa - pb
+
+
+def phase_difference_dc_estimate(a: Zpk | None, b: Zpk | None, f_hz: float) -> float:
+    """The DC-delay estimate of the same difference: -2 pi f (tau_a(0) - tau_b(0)), radians [WT].
+
+    Exact only where both delays are flat; it under-reads near the corner of a filter whose
+    delay peaks there (Butterworth, Chebyshev).
+    """
+    ta = group_delay_dc(a) if a is not None else 0.0
+    tb = group_delay_dc(b) if b is not None else 0.0
+    return -2.0 * math.pi * f_hz * (ta - tb)
+
+
+def lsb_size(range_volts: float, bits: int) -> float:
+    """Ideal code width: q = FSR / 2^N, volts (20 V, 16 bit: 305.176 uV) [1241]."""
+    return range_volts / 2.0**bits
