@@ -9,15 +9,19 @@ from .conftest import ROOT
 
 PACKAGE = ROOT / "generator"
 # module -> the generator modules it must never import (directly)
+_SITE = {"charts", "render", "site"}
 FORBIDDEN = {
-    "errors": {"quantities", "schema", "model", "load", "dsp", "analysis", "rules", "report", "cli", "site"},
-    "quantities": {"schema", "model", "load", "dsp", "analysis", "rules", "report", "cli", "site"},
-    "model": {"load", "dsp", "analysis", "rules", "report", "cli", "site"},
-    "load": {"dsp", "analysis", "rules", "report", "cli", "site"},
-    "dsp": {"quantities", "schema", "model", "load", "analysis", "rules", "report", "cli", "site"},
-    "analysis": {"load", "rules", "report", "cli", "site"},
-    "rules": {"load", "report", "cli", "site"},
-    "report": {"cli", "site"},
+    "errors": {"quantities", "schema", "model", "load", "dsp", "analysis", "rules", "report", "cli", *_SITE},
+    "quantities": {"schema", "model", "load", "dsp", "analysis", "rules", "report", "cli", *_SITE},
+    "model": {"load", "dsp", "analysis", "rules", "report", "cli", *_SITE},
+    "load": {"dsp", "analysis", "rules", "report", "cli", *_SITE},
+    "dsp": {"quantities", "schema", "model", "load", "analysis", "rules", "report", "cli", *_SITE},
+    "analysis": {"load", "rules", "report", "cli", *_SITE},
+    "rules": {"load", "report", "cli", *_SITE},
+    "report": {"cli", *_SITE},
+    "charts": {"load", "rules", "report", "render", "site", "cli"},
+    "render": {"load", "site", "cli"},
+    "site": {"cli"},
 }
 
 
