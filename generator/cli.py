@@ -21,7 +21,7 @@ from . import diff as spec_diff
 from .analysis import SystemAnalysis, analyze
 from .errors import SpecError, SpecErrors
 from .load import load_spec
-from .report import to_json, to_junit, to_sarif, to_text
+from .report import counts, to_json, to_junit, to_sarif, to_text
 from .rules import SEVERITY_RANK, Finding, all_rules, run_rules
 
 EXIT_OK = 0
@@ -29,6 +29,7 @@ EXIT_FINDINGS = 1
 EXIT_BAD_INPUT = 2
 
 DEFAULT_SPECS = "specs"
+DEFAULT_OUTPUT = "output"
 
 
 class _Parser(argparse.ArgumentParser):
@@ -59,6 +60,10 @@ def _parser() -> argparse.ArgumentParser:
     diff.add_argument("--format", choices=("text", "json", "markdown"), default="text", help="report format")
     diff.add_argument("--fail-on", choices=("error", "warning", "never"), default="error",
                       help="exit 1 when the head introduces a finding at or above this severity (default: error)")
+    build = sub.add_parser("build", help="publish the spec as a static site")
+    build.add_argument("specs", nargs="?", default=DEFAULT_SPECS, help="spec folder (default: specs)")
+    build.add_argument("-o", "--output", default=DEFAULT_OUTPUT,
+                       help="site folder (default: output); replaced as a whole on success")
 
     rules = sub.add_parser("rules", help="list the rules, or explain one")
     rules.add_argument("rule", nargs="?", help="a rule id")
@@ -109,6 +114,26 @@ def _cmd_diff(args: argparse.Namespace) -> int:
     render = {"json": spec_diff.to_json, "markdown": spec_diff.to_markdown}.get(args.format, spec_diff.to_text)
     sys.stdout.write(render(result))
     return EXIT_FINDINGS if spec_diff.introduces(result, args.fail_on) else EXIT_OK
+def _progress_bar(done: int, total: int, what: str) -> None:
+    width = 30
+    filled = width * done // max(total, 1)
+    sys.stderr.write(f"\r  [{'#' * filled}{'.' * (width - filled)}] {done}/{total} pages")
+    if done >= total:
+        sys.stderr.write("\n")
+    sys.stderr.flush()
+
+
+def _cmd_build(args: argparse.Namespace) -> int:
+    from .site import build  # the site stack (jinja2, markdown, nh3) loads only for this command
+
+    summary = build(args.specs, args.output, progress=_progress_bar if sys.stderr.isatty() else None)
+    c = counts(summary.findings)
+    index = summary.output / "index.html"
+    print(
+        f"built {summary.pages} pages for {summary.channels} channel{'s' if summary.channels != 1 else ''} "
+        f"({c['error']} error(s), {c['warning']} warning(s), {c['info']} note(s), {c['waived']} waived): {index}"
+    )
+    return EXIT_OK
 
 
 def _cmd_rules(args: argparse.Namespace) -> int:
@@ -126,7 +151,7 @@ def _cmd_rules(args: argparse.Namespace) -> int:
     return EXIT_OK
 
 
-COMMANDS = {"check": _cmd_check, "diff": _cmd_diff, "rules": _cmd_rules}
+COMMANDS = {"check": _cmd_check, "build": _cmd_build, "diff": _cmd_diff, "rules": _cmd_rules}
 
 
 def main(argv: Sequence[str] | None = None) -> int:

@@ -9,16 +9,20 @@ from .conftest import ROOT
 
 PACKAGE = ROOT / "generator"
 # module -> the generator modules it must never import (directly)
+_SITE = {"charts", "render", "site"}
 FORBIDDEN = {
-    "errors": {"quantities", "schema", "model", "load", "dsp", "analysis", "rules", "report", "cli", "site"},
-    "quantities": {"schema", "model", "load", "dsp", "analysis", "rules", "report", "cli", "site"},
-    "model": {"load", "dsp", "analysis", "rules", "report", "cli", "site"},
-    "load": {"dsp", "analysis", "rules", "report", "cli", "site"},
-    "dsp": {"quantities", "schema", "model", "load", "analysis", "rules", "report", "cli", "site"},
-    "analysis": {"load", "rules", "report", "cli", "site", "diff"},
-    "rules": {"load", "report", "cli", "site", "diff"},
-    "report": {"cli", "site", "diff"},
-    "diff": {"cli", "site"},
+    "errors": {"quantities", "schema", "model", "load", "dsp", "analysis", "rules", "report", "cli", *_SITE},
+    "quantities": {"schema", "model", "load", "dsp", "analysis", "rules", "report", "cli", *_SITE},
+    "model": {"load", "dsp", "analysis", "rules", "report", "cli", *_SITE},
+    "load": {"dsp", "analysis", "rules", "report", "cli", *_SITE},
+    "dsp": {"quantities", "schema", "model", "load", "analysis", "rules", "report", "cli", *_SITE},
+    "analysis": {"load", "rules", "report", "cli", "diff", *_SITE},
+    "rules": {"load", "report", "cli", "diff", *_SITE},
+    "report": {"cli", "diff", *_SITE},
+    "diff": {"cli", *_SITE},
+    "charts": {"load", "rules", "report", "render", "site", "cli"},
+    "render": {"load", "site", "cli"},
+    "site": {"cli"},
 }
 
 
