@@ -273,6 +273,7 @@ def _meets(family: str, order: int, corner: float, ripple: float, stop: float,
     return bool(attenuation_db(filt, f_pass) <= ap + tol and attenuation_db(filt, f_stop) >= as_ - tol * max(1.0, as_))
 
 
+@lru_cache(maxsize=16384)
 def _solve_normalised_loss(family: str, order: int, ripple: float, stop: float, loss_db: float) -> float | None:
     """Normalised frequency x where a monotonic-passband prototype's loss equals ``loss_db``."""
     z, p, k = _prototype(family, order, ripple, stop)

@@ -110,6 +110,17 @@ def alias_rejection(result: ChannelResult, analysis: SystemAnalysis) -> Iterator
     filt = s.filter
     if s.decimation is not None and s.alias_rejection_source == DIGITAL:
         dec = s.decimation
+        if dec.attenuation_db(s.first_alias_hz) <= 0:
+            stop_frac = dec.stopband_hz / s.rate_hz
+            fix = (f"raise the rate to at least {_hz(s.band_high_hz / (1 - stop_frac))}" if stop_frac < 1
+                   else "raise the rate")
+            yield Hit(
+                f"the first alias {_hz(s.first_alias_hz)} lies below the decimation filter's stopband edge "
+                f"{_hz(dec.stopband_hz)}, where its rejection is not specified; {_db(need)} needed there "
+                f"(the analog filter gives {_db(have)}): {fix}, or lower the band top",
+                "conversion.rate",
+            )
+            return
         yield Hit(
             f"the decimation filter rejects content near fs by {_db(dec.rejection_db)}"
             f"{f' (with the analog filter, {_db(have)})' if filt is not None else ''}, "
@@ -289,13 +300,13 @@ def interference_folds(result: ChannelResult, analysis: SystemAnalysis) -> Itera
             for n in range(filt.order + 1, flt.MAX_ORDER + 1):
                 cand = flt.design(filt.family, n, filt.corner_hz, filt.ripple_db, filt.stopband_db)
                 if flt.attenuation_db(cand, tone.frequency_hz) >= target:
-                    fixes.append(f"a {_describe(cand)} gives it")
+                    fixes[0] += f" (a {_describe(cand)} gives it)"
                     break
-        fixes.append("or remove it at its source")
+        fixes.append("remove it at its source")
         yield Hit(
             f"the {_hz(tone.frequency_hz)} tone{what} at {_dbfs(tone.level_dbfs or 0.0)} folds from zone "
             f"{tone.zone}{' (inverted)' if tone.inverted else ''} onto {_hz(tone.alias_hz)}, inside the band; "
             f"it gets {got} and lands at {_dbfs(landed)}, {_db(short)} above the {_dbfs(s.floor_dbfs)} floor: "
-            + "; ".join(fixes),
+            + ", or ".join(fixes),
             f"interference.{tone.index}",
         )
