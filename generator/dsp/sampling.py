@@ -7,6 +7,10 @@ References
 [OS]  A. V. Oppenheim, R. W. Schafer, *Discrete-Time Signal Processing*, ch. 4.
 [MT-002] W. Kester, "What the Nyquist criterion means to your sampled data system design",
       Analog Devices tutorial MT-002.
+[MT-001] W. Kester, "Taking the mystery out of the infamous formula, SNR = 6.02N + 1.76 dB",
+      Analog Devices tutorial MT-001.
+[AES17] AES17 / IEC 61606: dBFS referenced to a full-scale sine.
+[DER] derived here from the definitions above.
 """
 
 from __future__ import annotations
@@ -46,3 +50,45 @@ def nyquist_zone(f_hz: float, rate_hz: float) -> int:
 def is_inverted(f_hz: float, rate_hz: float) -> bool:
     """Content from even Nyquist zones arrives spectrally inverted [MT-002]."""
     return nyquist_zone(f_hz, rate_hz) % 2 == 0
+
+
+def full_scale_sine_sqnr_db(bits: int) -> float:
+    """Quantization SNR of a full-scale sine, noise in 0..fs/2, with exact constants.
+
+    SQNR = 20 log10(2^N sqrt(1.5)) = 6.0206 N + 1.7609 dB ("6.02 N + 1.76") [MT-001].
+    """
+    return 20.0 * math.log10(2.0) * bits + 10.0 * math.log10(1.5)
+
+
+def level_dbfs(amplitude_volts: float, full_scale_peak_volts: float) -> float:
+    """Sine-referenced dBFS of a sine of peak ``amplitude_volts`` at the converter input.
+
+    dBFS = 20 log10(A / V_FS,peak): 0 dBFS is a full-scale sine [AES17].  Zero amplitude is
+    reported as -400 dBFS rather than minus infinity.
+    """
+    if amplitude_volts <= 0 or full_scale_peak_volts <= 0:
+        return -400.0
+    return max(20.0 * math.log10(amplitude_volts / full_scale_peak_volts), -400.0)
+
+
+def digital_filter_region(f_hz: float, period_hz: float, passband_hz: float, stopband_hz: float) -> str:
+    """Where ``f_hz`` falls with respect to a digital filter that repeats every ``period_hz``.
+
+    The decimation filter of a delta-sigma converter runs at the modulator rate, so its
+    response repeats around every multiple of it [MT-002 sec. on oversampling], [DER].  With
+    d = |f - period * round(f / period)|: "pass" when d <= passband, "stop" when
+    d >= stopband, else "transition".  ``period_hz`` = inf means no repetition.
+    """
+    d = abs(f_hz) if math.isinf(period_hz) else abs(math.remainder(f_hz, period_hz))
+    if d <= passband_hz:
+        return "pass"
+    if d >= stopband_hz:
+        return "stop"
+    return "transition"
+
+
+def modulator_fold(f_hz: float, modulator_rate_hz: float) -> float:
+    """Where the modulator's own sampling puts ``f_hz``: |f - f_mod round(f / f_mod)| [OS], [DER]."""
+    if math.isinf(modulator_rate_hz):
+        return abs(f_hz)
+    return abs(math.remainder(f_hz, modulator_rate_hz))

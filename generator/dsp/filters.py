@@ -1,0 +1,435 @@
+"""Analog anti-aliasing filters: design, response, least order, cascaded stages.
+
+Every filter is designed once as a prototype at a normalised corner of 1 rad/s with the
+analog prototypes of scipy.signal (``analog=True``: an analog filter must never be sized as a
+digital one, whose bilinear pre-warping changes the transition ratio) and then scaled to
+``corner_hz``.  What "corner" means depends on the family:
+
+=============  ==============================================================================
+family         corner
+=============  ==============================================================================
+butterworth    the -3.01 dB frequency
+bessel         the -3.01 dB frequency (designed with ``norm='mag'``; scipy's default
+               ``norm='phase'`` does not put -3 dB at the corner)
+chebyshev1     the passband (ripple) edge: the highest frequency with loss <= ``ripple_db``
+elliptic       the passband (ripple) edge, as chebyshev1
+chebyshev2     the stopband edge: the lowest frequency from which loss >= ``stopband_db``
+=============  ==============================================================================
+
+Magnitude, phase and group delay are evaluated from the poles and zeros in the log domain,
+log|H(jw)| = log k + sum log|jw - z_i| - sum log|jw - p_i|, on the normalised frequency
+w = f / corner, so that no overflow, NaN or warning escapes for rates from 1 Hz to 10 GHz,
+orders 1 to 20 and attenuations up to a few hundred dB.
+
+References
+----------
+[WT]  A. B. Williams, F. J. Taylor, *Electronic Filter Design Handbook* (McGraw-Hill).
+[ZUM] H. Zumbahlen (ed.), *Linear Circuit Design Handbook* (Analog Devices), ch. 8.
+[SCIPY] scipy.signal: butter, bessel, cheby1, cheby2, ellip, buttord, cheb1ord, cheb2ord,
+      ellipord (analog=True).
+"""
+
+from __future__ import annotations
+
+import math
+import warnings
+from dataclasses import dataclass
+from functools import lru_cache
+from typing import overload
+
+import numpy as np
+from numpy.typing import NDArray
+from scipy import optimize, signal
+
+FAMILIES = ("butterworth", "bessel", "chebyshev1", "chebyshev2", "elliptic")
+MAX_ORDER = 20
+# Attenuation is reported up to this ceiling: beyond it a number says nothing physical (and at
+# an exact transmission zero of chebyshev2/elliptic the loss is infinite).
+MAX_ATTENUATION_DB = 400.0
+_TINY = 1e-300
+
+
+@dataclass(frozen=True)
+class AnalogFilter:
+    """An analog low-pass filter: its parameters and its poles/zeros in rad/s, scaled to the corner."""
+
+    family: str
+    order: int
+    corner_hz: float
+    ripple_db: float
+    stopband_db: float
+    zeros: tuple[complex, ...]
+    poles: tuple[complex, ...]
+    gain: float
+
+    @property
+    def corner_rad_s(self) -> float:
+        return 2.0 * math.pi * self.corner_hz
+
+
+@dataclass(frozen=True)
+class OrderDesign:
+    """The least order of one family meeting a mask, and the corner (per the family's definition) it implies."""
+
+    family: str
+    order: int
+    corner_hz: float
+    ripple_db: float
+    stopband_db: float
+
+    def as_filter(self) -> AnalogFilter:
+        return design(self.family, self.order, self.corner_hz, self.ripple_db, self.stopband_db)
+
+
+@dataclass(frozen=True)
+class Stage:
+    """One stage of a cascade: a real pole (``q`` is None) or a complex pole pair.
+
+    ``f0_hz`` = |p| / 2 pi; ``q`` = |p| / (2 |Re p|); ``notch_hz`` is the frequency of the stage's
+    pair of imaginary-axis zeros (chebyshev2, elliptic), if any.
+    """
+
+    f0_hz: float
+    q: float | None
+    notch_hz: float | None = None
+
+
+def _check_family(family: str) -> None:
+    if family not in FAMILIES:
+        raise ValueError(f"unknown filter family {family!r}; expected one of {', '.join(FAMILIES)}")
+
+
+@lru_cache(maxsize=1024)
+def _prototype(
+    family: str, order: int, ripple_db: float, stopband_db: float
+) -> tuple[NDArray[np.complex128], NDArray[np.complex128], float]:
+    """Zeros, poles and gain of the family's prototype with its corner at 1 rad/s [SCIPY]."""
+    _check_family(family)
+    if not 1 <= order <= MAX_ORDER:
+        raise ValueError(f"filter order {order} outside 1..{MAX_ORDER}")
+    if family in ("chebyshev1", "elliptic") and not ripple_db > 0:
+        raise ValueError("passband ripple must be positive")
+    if family in ("chebyshev2", "elliptic") and not stopband_db > 0:
+        raise ValueError("stopband attenuation must be positive")
+    if family == "elliptic" and stopband_db <= ripple_db:
+        raise ValueError("stopband attenuation must exceed the passband ripple")
+    with warnings.catch_warnings(), np.errstate(all="ignore"):
+        warnings.simplefilter("ignore")
+        if family == "butterworth":
+            z, p, k = signal.butter(order, 1.0, analog=True, output="zpk")
+        elif family == "bessel":
+            z, p, k = signal.bessel(order, 1.0, analog=True, norm="mag", output="zpk")
+        elif family == "chebyshev1":
+            z, p, k = signal.cheby1(order, ripple_db, 1.0, analog=True, output="zpk")
+        elif family == "chebyshev2":
+            z, p, k = signal.cheby2(order, stopband_db, 1.0, analog=True, output="zpk")
+        else:
+            z, p, k = signal.ellip(order, ripple_db, stopband_db, 1.0, analog=True, output="zpk")
+    z = np.asarray(z, dtype=np.complex128)
+    p = np.asarray(p, dtype=np.complex128)
+    if not (np.all(np.isfinite(z)) and np.all(np.isfinite(p)) and math.isfinite(float(k)) and k > 0):
+        raise ValueError(f"{family} prototype of order {order} could not be designed")
+    return z, p, float(k)
+
+
+@lru_cache(maxsize=65536)
+def design(
+    family: str, order: int, corner_hz: float, ripple_db: float = 0.1, stopband_db: float = 80.0
+) -> AnalogFilter:
+    """Design an analog low-pass filter of ``family``, ``order``, with its corner at ``corner_hz``.
+
+    The corner per family is defined in the module docstring (-3 dB for butterworth and
+    bessel, ripple edge for chebyshev1 and elliptic, stopband edge for chebyshev2) [WT], [SCIPY].
+    Poles and zeros are the prototype's scaled by wc = 2 pi corner_hz; gain is scaled by
+    wc^(n_poles - n_zeros) (infinite only for absurd corners and orders; the response functions
+    never use it).  ``ripple_db`` applies to chebyshev1/elliptic, ``stopband_db`` to
+    chebyshev2/elliptic.  Raises ValueError for an unknown family, an order outside 1..20, or
+    non-positive corner, ripple or stopband.
+    """
+    if not (math.isfinite(corner_hz) and corner_hz > 0):
+        raise ValueError(f"filter corner must be a positive frequency, got {corner_hz}")
+    z, p, k = _prototype(family, order, float(ripple_db), float(stopband_db))
+    wc = 2.0 * math.pi * corner_hz
+    log_gain = math.log(k) + (len(p) - len(z)) * math.log(wc)
+    gain = math.exp(log_gain) if log_gain < 709.0 else math.inf
+    return AnalogFilter(
+        family=family,
+        order=order,
+        corner_hz=corner_hz,
+        ripple_db=float(ripple_db),
+        stopband_db=float(stopband_db),
+        zeros=tuple(complex(v) * wc for v in z),
+        poles=tuple(complex(v) * wc for v in p),
+        gain=gain,
+    )
+
+
+def _normalised(filt: AnalogFilter) -> tuple[NDArray[np.complex128], NDArray[np.complex128], float]:
+    return _prototype(filt.family, filt.order, filt.ripple_db, filt.stopband_db)
+
+
+def _loss_normalised(
+    z: NDArray[np.complex128], p: NDArray[np.complex128], k: float, x: NDArray[np.float64]
+) -> NDArray[np.float64]:
+    """-20 log10 |H(jx)| in the log domain, x in units of the corner (rad/s per rad/s)."""
+    jx = 1j * x[..., None]
+    with np.errstate(all="ignore"):
+        log_num = np.sum(np.log(np.maximum(np.abs(jx - z), _TINY)), axis=-1) if z.size else 0.0
+        log_den = np.sum(np.log(np.maximum(np.abs(jx - p), _TINY)), axis=-1)
+    loss = -(20.0 / math.log(10.0)) * (math.log(k) + log_num - log_den)
+    # Peak passband gain is 0 dB by construction; clip rounding below it and the infinite loss
+    # at exact transmission zeros.
+    return np.asarray(np.clip(loss, 0.0, MAX_ATTENUATION_DB), dtype=np.float64)
+
+
+@overload
+def attenuation_db(filt: AnalogFilter, f_hz: float) -> float: ...
+@overload
+def attenuation_db(filt: AnalogFilter, f_hz: NDArray[np.float64]) -> NDArray[np.float64]: ...
+def attenuation_db(filt: AnalogFilter, f_hz: float | NDArray[np.float64]) -> float | NDArray[np.float64]:
+    """Loss of the filter at ``f_hz`` in dB (>= 0; 0 dB = peak passband gain).
+
+    A(f) = -20 log10 |H(j 2 pi f)|, H(s) = k prod(s - z_i) / prod(s - p_i) [WT], evaluated as
+    a sum of logarithms at w = f / corner on the prototype, capped at MAX_ATTENUATION_DB.
+    For butterworth this is 10 log10(1 + (f/fc)^(2n)) [WT], [ZUM].
+    """
+    z, p, k = _normalised(filt)
+    x = np.abs(np.asarray(f_hz, dtype=np.float64)) / filt.corner_hz
+    loss = _loss_normalised(z, p, k, x)
+    return float(loss) if np.ndim(f_hz) == 0 else loss
+
+
+@overload
+def phase_rad(filt: AnalogFilter, f_hz: float) -> float: ...
+@overload
+def phase_rad(filt: AnalogFilter, f_hz: NDArray[np.float64]) -> NDArray[np.float64]: ...
+def phase_rad(filt: AnalogFilter, f_hz: float | NDArray[np.float64]) -> float | NDArray[np.float64]:
+    """Unwrapped phase of H(j 2 pi f) in radians (0 at DC, falling with frequency).
+
+    phi(w) = sum arg(jw - z_i) - sum arg(jw - p_i) [WT]: each left-half-plane pole contributes a
+    continuous angle in (-pi/2, pi/2), so the sum needs no unwrapping; an imaginary-axis zero
+    adds its true jump of pi where the response changes sign.
+    """
+    z, p, _ = _normalised(filt)
+    x = np.asarray(f_hz, dtype=np.float64) / filt.corner_hz
+    jx = 1j * x[..., None]
+    num = np.sum(np.angle(jx - z), axis=-1) if z.size else 0.0
+    # Zeros on the axis come in conjugate pairs; at DC their angles cancel exactly.
+    phase = num - np.sum(np.angle(jx - p), axis=-1)
+    return float(phase) if np.ndim(f_hz) == 0 else np.asarray(phase, dtype=np.float64)
+
+
+@overload
+def group_delay_s(filt: AnalogFilter, f_hz: float) -> float: ...
+@overload
+def group_delay_s(filt: AnalogFilter, f_hz: NDArray[np.float64]) -> NDArray[np.float64]: ...
+def group_delay_s(filt: AnalogFilter, f_hz: float | NDArray[np.float64]) -> float | NDArray[np.float64]:
+    """Group delay -d(phi)/d(w) in seconds.
+
+    From the poles p = s + j w_p: tau(w) = sum -s / ((w - w_p)^2 + s^2), minus the same sum over
+    zeros off the imaginary axis (zeros on it add none) [DER from pole positions, as in
+    check-values]; DC value for butterworth: 1 / (2 pi fc sin(pi / 2n)).
+    """
+    z, p, _ = _normalised(filt)
+    x = np.asarray(f_hz, dtype=np.float64) / filt.corner_hz
+    xv = x[..., None]
+    tau = np.sum(-p.real / ((xv - p.imag) ** 2 + p.real**2), axis=-1)
+    zo = z[np.abs(z.real) > 0]
+    if zo.size:
+        tau = tau + np.sum(zo.real / ((xv - zo.imag) ** 2 + zo.real**2), axis=-1)
+    tau = tau / filt.corner_rad_s
+    return float(tau) if np.ndim(f_hz) == 0 else np.asarray(tau, dtype=np.float64)
+
+
+def stages(filt: AnalogFilter) -> tuple[Stage, ...]:
+    """Second-order (and one first-order) stages of the filter, by ascending Q.
+
+    Each complex pole pair p, p* is a stage with f0 = |p| / 2 pi and Q = |p| / (2 |Re p|); a
+    real pole is a first-order stage (Q None) [WT], [ZUM].  Zero pairs on the imaginary axis are
+    given to the stages in the same order (lowest notch to lowest-Q stage).
+    """
+    wc = filt.corner_rad_s
+    z, p, _ = _normalised(filt)
+    out: list[tuple[float, float | None]] = []
+    for pole in p:
+        if abs(pole.imag) <= 1e-9 * abs(pole):
+            out.append((float(abs(pole)) * wc / (2 * math.pi), None))
+        elif pole.imag > 0:
+            out.append((float(abs(pole)) * wc / (2 * math.pi), float(abs(pole) / (2.0 * abs(pole.real)))))
+    out.sort(key=lambda s: (-1.0 if s[1] is None else s[1], s[0]))
+    notches = sorted(float(abs(v.imag)) * wc / (2 * math.pi) for v in z if v.imag > 0)
+    result: list[Stage] = []
+    pairs = iter(notches)
+    for f0, q in out:
+        notch = next(pairs, None) if q is not None else None
+        result.append(Stage(f0, q, notch))
+    return tuple(result)
+
+
+def _meets(family: str, order: int, corner: float, ripple: float, stop: float,
+           f_pass: float, f_stop: float, ap: float, as_: float) -> bool:
+    filt = design(family, order, corner, ripple, stop)
+    tol = 1e-7
+    return bool(attenuation_db(filt, f_pass) <= ap + tol and attenuation_db(filt, f_stop) >= as_ - tol * max(1.0, as_))
+
+
+@lru_cache(maxsize=16384)
+def _solve_normalised_loss(family: str, order: int, ripple: float, stop: float, loss_db: float) -> float | None:
+    """Normalised frequency x where a monotonic-passband prototype's loss equals ``loss_db``."""
+    z, p, k = _prototype(family, order, ripple, stop)
+
+    def g(logx: float) -> float:
+        return float(_loss_normalised(z, p, k, np.array([math.exp(logx)]))[0]) - loss_db
+
+    lo, hi = math.log(1e-12), math.log(1e12)
+    if g(lo) > 0 or g(hi) < 0:
+        return None
+    return math.exp(float(optimize.brentq(g, lo, hi, xtol=1e-13, rtol=1e-13)))
+
+
+@lru_cache(maxsize=16384)
+def _least_order_normalised(family: str, ratio: float, ap: float, as_: float) -> tuple[int, float] | None:
+    """Least order and corner for f_pass = 1, f_stop = ratio; None when above MAX_ORDER."""
+    if family == "bessel":
+        for n in range(1, MAX_ORDER + 1):
+            x = _solve_normalised_loss("bessel", n, 0.1, 80.0, ap)
+            if x is None:
+                continue
+            corner = 1.0 / x  # passband loss exactly ap at f_pass
+            if _meets("bessel", n, corner, 0.1, 80.0, 1.0, ratio, ap, as_):
+                return n, corner
+        return None
+    fn = {"butterworth": signal.buttord, "chebyshev1": signal.cheb1ord,
+          "chebyshev2": signal.cheb2ord, "elliptic": signal.ellipord}[family]
+    with warnings.catch_warnings(), np.errstate(all="ignore"):
+        warnings.simplefilter("ignore")
+        try:
+            n_raw, wn = fn(1.0, ratio, ap, as_, analog=True)
+        except (ValueError, ArithmeticError):
+            return None
+    wn_f = float(np.atleast_1d(wn)[0])
+    if not (math.isfinite(wn_f) and wn_f > 0) or n_raw > MAX_ORDER + 1:
+        return None
+    ripple = ap if family in ("chebyshev1", "elliptic") else 0.1
+    stop = as_ if family in ("chebyshev2", "elliptic") else 80.0
+
+    def corner_for(n: int) -> float:
+        if family == "butterworth":  # passband met exactly: fc = fp / ep2^(1/2n) [WT]
+            return float(1.0 / (10.0 ** (ap / 10.0) - 1.0) ** (1.0 / (2 * n)))
+        if family == "chebyshev2":  # stopband edge placed so the passband loss is exactly ap
+            x = _solve_normalised_loss("chebyshev2", n, ripple, stop, ap)
+            return 1.0 / x if x else float(wn_f)
+        return 1.0  # chebyshev1, elliptic: corner = ripple edge = f_pass
+
+    # scipy rounds a real order up with ceil(); a real order that sits on an integer can come
+    # back one too high, and numerics may leave one too low: check against the designed response.
+    n = int(n_raw)
+    if n > 1 and n - 1 <= MAX_ORDER and _meets(family, n - 1, corner_for(n - 1), ripple, stop, 1.0, ratio, ap, as_):
+        n -= 1
+    while n <= MAX_ORDER and not _meets(family, n, corner_for(n), ripple, stop, 1.0, ratio, ap, as_):
+        n += 1
+    if n > MAX_ORDER:
+        return None
+    return n, corner_for(n)
+
+
+def least_order(
+    family: str, f_pass_hz: float, f_stop_hz: float, pass_loss_db: float, stop_atten_db: float
+) -> OrderDesign | None:
+    """Least order of ``family``: loss <= ``pass_loss_db`` at ``f_pass_hz``, >= ``stop_atten_db`` at ``f_stop_hz``.
+
+    Uses scipy's ``buttord``/``cheb1ord``/``cheb2ord``/``ellipord`` with ``analog=True``, whose
+    closed forms are [WT], [ZUM]: butterworth n >= log10(es2/ep2) / (2 log10 r); chebyshev
+    n >= acosh(sqrt(es2/ep2)) / acosh(r); elliptic n >= K(m) K(1-m1) / (K(1-m) K(m1)), with
+    r = f_stop/f_pass, ep2 = 10^(Ap/10) - 1, es2 = 10^(As/10) - 1, m = 1/r^2, m1 = ep2/es2.
+    Bessel has no closed form: each order is tried, its corner set so the passband loss is
+    exactly Ap.  The order is then confirmed on the designed response (an exact-integer real
+    order is not rounded up).  The corner follows the family's definition: butterworth at
+    f_pass / ep2^(1/2n) (passband met exactly), chebyshev1 and elliptic at f_pass, chebyshev2
+    at the stopband edge that meets Ap exactly, bessel at its -3 dB point.
+    Returns None when more than 20 poles would be needed.  Raises ValueError when the stopband
+    does not lie above the passband or a loss is not positive.
+    """
+    _check_family(family)
+    if not (f_pass_hz > 0 and math.isfinite(f_pass_hz) and math.isfinite(f_stop_hz)):
+        raise ValueError("pass and stop frequencies must be positive and finite")
+    if not f_stop_hz > f_pass_hz:
+        raise ValueError(f"stopband {f_stop_hz} Hz must lie above the passband {f_pass_hz} Hz")
+    if not (pass_loss_db > 0 and stop_atten_db > pass_loss_db):
+        raise ValueError("need 0 < passband loss < stopband attenuation")
+    found = _least_order_normalised(family, f_stop_hz / f_pass_hz, float(pass_loss_db), float(stop_atten_db))
+    if found is None:
+        return None
+    n, corner = found
+    ripple = float(pass_loss_db) if family in ("chebyshev1", "elliptic") else 0.1
+    stop = float(stop_atten_db) if family in ("chebyshev2", "elliptic") else 80.0
+    return OrderDesign(family, n, corner * f_pass_hz, ripple, stop)
+
+
+def frequency_for_attenuation(filt: AnalogFilter, atten_db: float) -> float | None:
+    """Lowest frequency from which the filter's loss stays at or above ``atten_db``.
+
+    Found on a logarithmic grid of the response (running minimum from the top down) and refined
+    with Brent's method; None when the filter never gets there (a chebyshev2 or elliptic whose
+    stopband floor is below ``atten_db``).
+    """
+    if atten_db <= 0:
+        return 0.0
+    if filt.family in ("chebyshev2", "elliptic") and atten_db > filt.stopband_db + 1e-9:
+        return None
+    z, p, k = _normalised(filt)
+    x = np.logspace(-3, 8, 2201)
+    loss = _loss_normalised(z, p, k, x)
+    floor_from_here = np.minimum.accumulate(loss[::-1])[::-1]
+    ok = np.nonzero(floor_from_here >= atten_db - 1e-9)[0]
+    if ok.size == 0:
+        return None
+    i = int(ok[0])
+    if i == 0:
+        return float(x[0] * filt.corner_hz)
+
+    def g(v: float) -> float:
+        return float(_loss_normalised(z, p, k, np.array([v]))[0]) - atten_db
+
+    lo, hi = float(x[i - 1]), float(x[i])
+    root = float(optimize.brentq(g, lo, hi, xtol=1e-14, rtol=1e-12)) if g(lo) < 0 < g(hi) else hi
+    return root * filt.corner_hz
+
+
+def corner_for_droop(filt: AnalogFilter, f_hz: float, loss_db: float) -> float | None:
+    """Corner at which the same family and order loses exactly ``loss_db`` at ``f_hz``.
+
+    For monotonic passbands (butterworth, bessel, chebyshev2) the normalised loss curve is
+    solved for x and the corner is f / x; for chebyshev1 and elliptic the passband ripple edge
+    is the corner, so the answer is ``f_hz`` when the ripple itself is within ``loss_db`` and
+    None otherwise (then the ripple must be reduced).
+    """
+    if filt.family in ("chebyshev1", "elliptic"):
+        return f_hz if filt.ripple_db <= loss_db + 1e-12 else None
+    x = _solve_normalised_loss(filt.family, filt.order, filt.ripple_db, filt.stopband_db, loss_db)
+    return f_hz / x if x else None
+
+
+def stop_edge_for_order(
+    family: str, f_pass_hz: float, order: int, pass_loss_db: float, stop_atten_db: float
+) -> float | None:
+    """Lowest stopband edge at which ``order`` poles of ``family`` meet the mask (bisection on :func:`least_order`).
+
+    The least order falls as the stopband edge rises, so the edge where it first drops to
+    ``order`` is found by bisection on log(f_stop / f_pass) between 1 and 1e9; None if even
+    that wide a transition needs more poles.
+    """
+    def fits(log_r: float) -> bool:
+        d = least_order(family, f_pass_hz, f_pass_hz * math.exp(log_r), pass_loss_db, stop_atten_db)
+        return d is not None and d.order <= order
+
+    lo, hi = 1e-9, math.log(1e9)
+    if not fits(hi):
+        return None
+    for _ in range(60):
+        mid = 0.5 * (lo + hi)
+        if fits(mid):
+            hi = mid
+        else:
+            lo = mid
+    return f_pass_hz * math.exp(hi)
