@@ -28,6 +28,7 @@ from types import MappingProxyType
 from typing import Any
 
 from ..dsp import budgets as dsp
+from ..dsp import filters
 from ..model import Channel, Clock, Converter, Filter, Spec
 from .figures import FigureValue, figure
 
@@ -270,30 +271,11 @@ def _clock_checks(conv: Converter, clock: Clock, members: list[Channel]) -> list
 
 
 def _filter_zpk(filt: Filter) -> dsp.Zpk | None:
-    """Zeros, poles and gain (rad/s) of a channel's analog filter; None when order or corner is missing.
-
-    Replace with dsp.filters.design at integration.  Corner conventions follow the README:
-    -3 dB point (butterworth; bessel with norm='mag'), ripple-band edge (chebyshev1, elliptic),
-    stopband edge (chebyshev2).
-    """
-    from scipy import signal  # local: scipy is slow to import and only groups need it
-
+    """Zeros, poles and gain (rad/s) of a channel's analog filter; None when order or corner is missing."""
     if filt.order is None or filt.corner is None:
         return None
-    n, wc = filt.order, 2.0 * math.pi * filt.corner
-    if filt.family == "butterworth":
-        z, p, k = signal.butter(n, wc, analog=True, output="zpk")
-    elif filt.family == "bessel":
-        z, p, k = signal.bessel(n, wc, analog=True, output="zpk", norm="mag")
-    elif filt.family == "chebyshev1":
-        z, p, k = signal.cheby1(n, filt.ripple_db, wc, analog=True, output="zpk")
-    elif filt.family == "chebyshev2":
-        z, p, k = signal.cheby2(n, filt.stopband_db, wc, analog=True, output="zpk")
-    elif filt.family == "elliptic":
-        z, p, k = signal.ellip(n, filt.ripple_db, filt.stopband_db, wc, analog=True, output="zpk")
-    else:
-        return None
-    return (tuple(complex(x) for x in z), tuple(complex(x) for x in p), float(k))
+    f = filters.design(filt.family, filt.order, filt.corner, filt.ripple_db, filt.stopband_db)
+    return (f.zeros, f.poles, f.gain)
 
 
 def _group_timing(spec: Spec, gid: str, members: list[Channel], skews: Mapping[str, float]) -> GroupTiming:

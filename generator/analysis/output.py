@@ -7,12 +7,9 @@ Sign conventions: ``zoh_droop_db`` is the hold's gain at the band top in dB (0 o
 
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass
 
-import numpy as np
-from scipy import signal as sps
-
+from ..dsp import filters
 from ..dsp import reconstruction as rec
 from ..model import Channel, Filter, System
 from .figures import FigureValue, figure
@@ -86,41 +83,12 @@ class OutputResult:
         }
 
 
-def _filter_loss_db(filt: Filter, f_hz: float) -> float:
-    """Loss in dB (positive) of the analog filter ``filt`` at ``f_hz``, relative to its passband peak.
-
-    Designed as an analog prototype at a corner of 1 rad/s and evaluated at f / corner (scipy.signal,
-    ``analog=True``).  ``corner`` is the -3 dB point for butterworth and bessel (bessel with
-    ``norm='mag'``), the ripple-band edge for chebyshev1 and elliptic, the stopband edge for
-    chebyshev2.  Requires ``filt.order`` and ``filt.corner``.
-    """
-    # replace with dsp.filters.attenuation_db at integration
-    assert filt.order is not None and filt.corner is not None
-    n, rp, rs = filt.order, filt.ripple_db, filt.stopband_db
-    if filt.family == "butterworth":
-        z, p, k = sps.butter(n, 1.0, analog=True, output="zpk")
-    elif filt.family == "bessel":
-        z, p, k = sps.bessel(n, 1.0, analog=True, output="zpk", norm="mag")
-    elif filt.family == "chebyshev1":
-        z, p, k = sps.cheby1(n, rp, 1.0, analog=True, output="zpk")
-    elif filt.family == "chebyshev2":
-        z, p, k = sps.cheby2(n, rs, 1.0, analog=True, output="zpk")
-    elif filt.family == "elliptic":
-        z, p, k = sps.ellip(n, rp, rs, 1.0, analog=True, output="zpk")
-    else:
-        raise ValueError(f"unknown filter family {filt.family}")
-    _, h = sps.freqs_zpk(z, p, k, worN=np.array([f_hz / filt.corner]))
-    mag = float(abs(h[0]))
-    if mag == 0.0:
-        return math.inf
-    return max(0.0, -20.0 * math.log10(mag))
-
-
 def filter_loss_db(filt: Filter | None, f_hz: float) -> float | None:
     """Loss of a channel's reconstruction filter at ``f_hz``; None when no filter is designed."""
     if filt is None or filt.order is None or filt.corner is None:
         return None
-    return _filter_loss_db(filt, f_hz)
+    return float(filters.attenuation_db(
+        filters.design(filt.family, filt.order, filt.corner, filt.ripple_db, filt.stopband_db), f_hz))
 
 
 def image_rejection_at(channel: Channel, rate_hz: float) -> float:
