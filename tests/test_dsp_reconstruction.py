@@ -6,6 +6,7 @@ import numpy as np
 import pytest
 from numpy.testing import assert_allclose
 
+from generator.dsp import quantization
 from generator.dsp import reconstruction as rec
 
 # check-values.md section 5, ZOH droop table: |sinc(f/fs)| and 20 log10 of it [MT-017], [OS], [NP].
@@ -50,7 +51,7 @@ def test_images_and_their_level(f: float, fs: float, images_khz: list[float], le
     assert rec.first_image(f, fs) == pytest.approx(images_khz[0] * 1e3)
     assert_allclose(rec.image_level_after_hold_db(f, fs), level, rtol=1e-4)
     assert_allclose(rec.hold_image_attenuation_db(f, fs), -level, rtol=1e-4)
-    assert_allclose(rec.filter_needed_at_image_db(rec.dac_floor_db(16), f, fs), needed, rtol=1e-4)
+    assert_allclose(rec.filter_needed_at_image_db(quantization.sqnr_db(16), f, fs), needed, rtol=1e-4)
 
 
 def test_image_level_equals_ratio_of_two_sincs() -> None:
@@ -62,8 +63,8 @@ def test_image_level_equals_ratio_of_two_sincs() -> None:
 
 def test_dac_floor_is_exact_sqnr() -> None:
     # source: check-values.md section 3, exact 20 log10(2^N sqrt(1.5)) column [MT-001]
-    assert_allclose(rec.dac_floor_db(16), 98.0905, rtol=1e-5)
-    assert_allclose(rec.dac_floor_db(12), 74.0081, rtol=1e-5)
+    assert_allclose(quantization.sqnr_db(16), 98.0905, rtol=1e-5)
+    assert_allclose(quantization.sqnr_db(12), 74.0081, rtol=1e-5)
 
 
 @pytest.mark.parametrize(("cycles", "samples"), [(13, 64), (5, 64), (29, 64)])

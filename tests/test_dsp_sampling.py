@@ -14,6 +14,7 @@ import pytest
 from numpy.testing import assert_allclose
 
 from generator.dsp import filters as flt
+from generator.dsp import quantization
 from generator.dsp import sampling as dsp
 
 # f, fs, zone, inverted, f_a  -- check-values.md section 1, fold table [OS], [MT-002]
@@ -64,7 +65,7 @@ def test_nyquist_and_first_alias() -> None:
 @pytest.mark.parametrize(("bits", "sqnr"), [(8, 49.9257), (12, 74.0081), (16, 98.0905), (24, 146.255)])
 def test_sqnr_exact_constants(bits: int, sqnr: float) -> None:
     # check-values section 3: 20 log10(2^N sqrt(1.5)) [MT-001]
-    assert_allclose(dsp.full_scale_sine_sqnr_db(bits), sqnr, rtol=1e-5)
+    assert_allclose(quantization.sqnr_db(bits), sqnr, rtol=1e-5)
 
 
 def test_level_dbfs_is_sine_referenced() -> None:

@@ -28,7 +28,7 @@ from types import MappingProxyType
 from typing import Any
 
 from ..dsp import budgets as dsp
-from ..dsp import filters
+from ..dsp import filters, quantization
 from ..model import Channel, Clock, Converter, Filter, Spec
 from .figures import FigureValue, figure
 
@@ -197,7 +197,7 @@ def channel_budget(ch: Channel) -> ChannelBudget | None:
         return None
     container = conv.container_bits or conv.bits
     n = _samples_per_frame(ch)
-    lsb = dsp.lsb_size(conv.full_scale.width, conv.bits) if conv.full_scale is not None else None
+    lsb = quantization.lsb(conv.full_scale.width, conv.bits) if conv.full_scale is not None else None
     return ChannelBudget(dsp.stream_rate(conv.rate * n, container), dsp.payload_rate(conv.rate * n, conv.bits), lsb)
 
 

@@ -9,7 +9,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
-from ..dsp import filters
+from ..dsp import filters, quantization
 from ..dsp import reconstruction as rec
 from ..model import Channel, Filter, System
 from .figures import FigureValue, figure
@@ -117,7 +117,7 @@ def analyze_output(channel: Channel, system: System) -> OutputResult | None:
     filt_droop = filter_loss_db(channel.filter, f_high)
     required = channel.signal.image_rejection_db
     if required is None and conv.bits is not None:
-        required = rec.dac_floor_db(conv.bits)
+        required = quantization.sqnr_db(conv.bits)
     needed = None if required is None else required - hold_image
     peak = None if conv.full_scale is None else conv.full_scale.peak * conv.gain
     return OutputResult(

@@ -24,6 +24,7 @@ from dataclasses import dataclass, field, replace
 from typing import Any
 
 from ..dsp import filters as flt
+from ..dsp import quantization
 from ..dsp import sampling as dsp
 from ..model import Channel, Converter, System, Tone
 from .figures import FigureValue, figure
@@ -266,7 +267,7 @@ def _floor(channel: Channel, peak_dbfs: float | None) -> float | None:
     if snr is not None:
         return min(peak_dbfs if peak_dbfs is not None else 0.0, 0.0) - snr
     bits = channel.conversion.bits
-    return -dsp.full_scale_sine_sqnr_db(bits) if bits is not None else None
+    return -quantization.sqnr_db(bits) if bits is not None else None
 
 
 def _least_orders(f_pass: float, f_stop: float | None, flatness: float,

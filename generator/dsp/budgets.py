@@ -187,8 +187,3 @@ def phase_difference_dc_estimate(a: Zpk | None, b: Zpk | None, f_hz: float) -> f
     ta = group_delay_dc(a) if a is not None else 0.0
     tb = group_delay_dc(b) if b is not None else 0.0
     return -2.0 * math.pi * f_hz * (ta - tb)
-
-
-def lsb_size(range_volts: float, bits: int) -> float:
-    """Ideal code width: q = FSR / 2^N, volts (20 V, 16 bit: 305.176 uV) [1241]."""
-    return range_volts / 2.0**bits

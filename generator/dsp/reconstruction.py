@@ -101,12 +101,6 @@ def filter_needed_at_image_db(target_db: float, f_hz: float, rate_hz: float) -> 
     return target_db + image_level_after_hold_db(f_hz, rate_hz)
 
 
-def dac_floor_db(bits: int) -> float:
-    """Quantization SNR of an ideal N-bit converter for a full-scale sine, in dB:
-    20 log10(2^N sqrt(1.5)) = 6.0206 N + 1.7609 [MT-001]; the default image-rejection target."""
-    return bits * _DB_PER_BIT + _SINE_FACTOR_DB
-
-
 def max_hold_fraction(loss_db: float) -> float:
     """Largest f/fs at which the hold loses no more than ``loss_db`` (> 0) dB.
 

@@ -52,14 +52,6 @@ def is_inverted(f_hz: float, rate_hz: float) -> bool:
     return nyquist_zone(f_hz, rate_hz) % 2 == 0
 
 
-def full_scale_sine_sqnr_db(bits: int) -> float:
-    """Quantization SNR of a full-scale sine, noise in 0..fs/2, with exact constants.
-
-    SQNR = 20 log10(2^N sqrt(1.5)) = 6.0206 N + 1.7609 dB ("6.02 N + 1.76") [MT-001].
-    """
-    return 20.0 * math.log10(2.0) * bits + 10.0 * math.log10(1.5)
-
-
 def level_dbfs(amplitude_volts: float, full_scale_peak_volts: float) -> float:
     """Sine-referenced dBFS of a sine of peak ``amplitude_volts`` at the converter input.
 
