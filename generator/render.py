@@ -344,7 +344,8 @@ def format_figure(key: str, value: FigureValue, channel: Channel) -> str:
         dim = info.dim if info is not None else ""
         try:
             if dim == "<unit>":
-                return format_in_unit(float(value), channel.unit)
+                # `_units` figures are already in the channel's engineering unit, not SI
+                return format_in_unit(float(value) * channel.unit.factor, channel.unit)
             if dim in ("%", "percent"):
                 return format_percent(float(value))
             return format_quantity(float(value), dim)

@@ -364,3 +364,17 @@ def test_cli_build_and_refusal(tmp_path: Path, capsys: pytest.CaptureFixture[str
     (foreign / "x.txt").write_text("x", encoding="utf-8")
     assert main(["build", str(MINIMAL), "-o", str(foreign)]) == EXIT_BAD_INPUT
     assert "refusing" in capsys.readouterr().err
+
+
+def test_engineering_unit_figures_are_not_converted_twice() -> None:
+    # TACHO-HSS: 16 bits over ±10 V -> q = 20 V / 65536 = 305.2 µV [IEEE 1241]; at 5 mV/rpm that is
+    # 0.06104 rpm per LSB (hand arithmetic). The rpm is 1/60 Hz, so a second conversion would read 3.662 rpm.
+    from generator.analysis import analyze
+    from generator.load import load_spec
+    from generator.render import format_figure
+
+    from .conftest import DEMO
+
+    result = analyze(load_spec(DEMO)).result("TACHO-HSS")
+    text = format_figure("lsb_units", result.figures["lsb_units"], result.channel)
+    assert text == "0.06104 rpm"
