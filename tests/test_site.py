@@ -225,7 +225,7 @@ def test_folding_chart_places_tones_where_they_fold(tmp_path: Path) -> None:
     assert "zone 4, inverted" in landed["text"][1]
     # the tone's source reaches plotly only escaped, and the JSON cannot close its <script>
     assert "<img" not in chart.to_json() and "&lt;img" in json.loads(chart.to_json())["data"][1]["text"][1]
-    assert [c.id for c in channel_charts(result)][0] == "chart-folding"
+    assert next(c.id for c in channel_charts(result)) == "chart-folding"
     tone = result.channel.interference[1]
     assert tone_dbfs(tone, result.channel) == pytest.approx(-20.0)
 
