@@ -24,11 +24,13 @@ import json
 import math
 from collections.abc import Callable, Iterable, Sequence
 from dataclasses import dataclass
+from functools import lru_cache
 from typing import Any
 
 import numpy as np
 
 from .analysis import ChannelResult
+from .dsp import filters as flt
 from .dsp.sampling import alias_frequency, nyquist_zone
 from .model import Channel, Tone
 from .quantities import format_in_unit, format_quantity
@@ -62,10 +64,17 @@ class Chart:
         return text.replace("<", "\\u003c").replace(">", "\\u003e").replace("&", "\\u0026")
 
 
-def typed_array(values: Iterable[float] | np.ndarray) -> dict[str, str]:
-    """plotly's typed-array form of a float array: little-endian float64, base64."""
-    arr = np.asarray(values if isinstance(values, np.ndarray) else list(values), dtype="<f8")
-    return {"dtype": "f8", "bdata": base64.b64encode(arr.tobytes()).decode("ascii")}
+def typed_array(values: Iterable[float] | np.ndarray, dtype: str = "f8") -> dict[str, str]:
+    """plotly's typed-array form of a float array: little-endian float64 (or "f4", float32), base64."""
+    if dtype not in ("f8", "f4"):
+        raise ValueError(f"typed arrays are f8 or f4, not {dtype!r}")
+    arr = np.asarray(values if isinstance(values, np.ndarray) else list(values), dtype="<" + dtype)
+    return {"dtype": dtype, "bdata": base64.b64encode(arr.tobytes()).decode("ascii")}
+
+
+def _curve(values: Iterable[float] | np.ndarray) -> dict[str, str]:
+    """A dense curve (hundreds of points) as float32: half the bytes, ample for a drawing."""
+    return typed_array(values, "f4")
 
 
 def _text(value: str) -> str:
@@ -165,14 +174,21 @@ def folding_chart(result: ChannelResult) -> Chart | None:
     fs/2 and the multiples of fs, the first alias fs - f_high, the frequency ranges that fold
     into the band, and each declared interference tone at its own frequency with an arrow to
     where it appears after sampling, f_a = |f - fs round(f / fs)| (Oppenheim & Schafer ch. 4).
-    Levels are before the anti-aliasing filter.
+    Tone markers are levels before the anti-aliasing filter; where a tone lands is drawn at its
+    landed level, ``level - A(f)`` from :attr:`SamplingResult.tones` (analog filter plus any
+    delta-sigma decimation filter), or at the declared level when no filter is known.
     """
     s = result.sampling
     ch = result.channel
     if s is None or ch.kind != "input" or s.rate_hz <= 0:
         return None
     fs = s.rate_hz
-    tones = sorted(ch.interference, key=lambda t: (t.frequency, t.level, t.source))
+    order = sorted(range(len(ch.interference)),
+                   key=lambda i: (ch.interference[i].frequency, ch.interference[i].level, ch.interference[i].source))
+    tones = [ch.interference[i] for i in order]
+    folds = {t.index: t for t in s.tones}
+    # after the analog filter (and a delta-sigma decimation filter): level - A(f), from SamplingResult
+    landed = [folds[i].landed_dbfs if i in folds else None for i in order]
     top = max([2.0 * fs, *(1.1 * t.frequency for t in tones)])
     zones = min(MAX_ZONES, max(4, math.ceil(2.0 * top / fs)))
     x_max = zones * fs / 2.0
@@ -199,7 +215,7 @@ def folding_chart(result: ChannelResult) -> Chart | None:
         annotations.append(_label(s.first_alias_hz, f"first alias {_hz(s.first_alias_hz)} ", 0.93, "right"))
 
     levels = [tone_dbfs(t, ch) for t in tones]
-    known = [lv for lv in levels if lv is not None]
+    known = [lv for lv in (*levels, *landed) if lv is not None]
     floor = min([-120.0, *(lv - 20.0 for lv in known)])
     y_unknown = floor + 10.0  # tones whose level cannot be put in dBFS sit on a fixed line
 
@@ -218,8 +234,9 @@ def folding_chart(result: ChannelResult) -> Chart | None:
     ay: list[float] = []
     ttext: list[str] = []
     atext: list[str] = []
-    for tone, lv in zip(tones, levels, strict=True):
+    for tone, lv, after in zip(tones, levels, landed, strict=True):
         y = lv if lv is not None else y_unknown
+        y_after = after if after is not None else y
         fa = alias_frequency(tone.frequency, fs)
         zone = nyquist_zone(tone.frequency, fs)
         lands = "in the band" if s.band_low_hz <= fa <= s.band_high_hz else "outside the band"
@@ -230,11 +247,12 @@ def folding_chart(result: ChannelResult) -> Chart | None:
             ty.append(y)
             ttext.append(f"{_text(what)}<br>{_text(where)}")
         ax.append(fa)
-        ay.append(y)
-        atext.append(f"alias of {_text(what)}<br>{_text(where)}")
-        if zone > 1 and tone.frequency <= x_max:
+        ay.append(y_after)
+        level_after = "" if after is None else f", {after:.1f} dBFS after the filter"
+        atext.append(f"alias of {_text(what)}<br>{_text(where + level_after)}")
+        if (zone > 1 or y_after != y) and tone.frequency <= x_max:
             annotations.append({
-                "x": fa, "y": y, "ax": tone.frequency, "ay": y, "xref": "x", "yref": "y",
+                "x": fa, "y": y_after, "ax": tone.frequency, "ay": y, "xref": "x", "yref": "y",
                 "axref": "x", "ayref": "y", "showarrow": True, "arrowhead": 2, "arrowsize": 1,
                 "arrowwidth": 1.2, "arrowcolor": ALIAS_COLOUR, "text": "",
             })
@@ -258,8 +276,12 @@ def folding_chart(result: ChannelResult) -> Chart | None:
     )
     caption = (
         f"Sampling at {_hz(fs)}: content between k·fs ± the band edges (red) folds into the band "
-        f"(green). Shaded zones arrive spectrally inverted. Levels are before the anti-aliasing filter."
+        f"(green). Shaded zones arrive spectrally inverted. Diamonds are levels before the anti-aliasing filter"
     )
+    if any(lv is not None for lv in landed):
+        caption += "; circles are where and how strong each tone lands after the filter."
+    else:
+        caption += "."
     if not tones:
         caption += " No interference tones are declared for this channel."
     if any(lv is None for lv in levels):
@@ -267,9 +289,384 @@ def folding_chart(result: ChannelResult) -> Chart | None:
     return Chart("chart-folding", "Folding", {"data": data, "layout": layout}, caption)
 
 
+# ---------------------------------------------------------------------------------------------
+# Filter response over its mask
+# ---------------------------------------------------------------------------------------------
+
+GRID_POINTS = 200
+"""Points of a log-frequency response trace (marked frequencies are added exactly)."""
+
+RESPONSE_FLOOR_DB = -200.0
+"""Deepest gain drawn; a transmission zero (-inf dB) is drawn here."""
+
+MASK_PASS_COLOUR = "rgba(46, 125, 50, 0.25)"
+MASK_STOP_COLOUR = "rgba(198, 40, 40, 0.15)"
+RESPONSE_COLOUR = "#1565c0"
+DELAY_COLOUR = "#ef6c00"
+HOLD_COLOUR = "#6a1b9a"
+
+
+def _log_label(x: float, text: str, y: float = 1.0, anchor: str = "center") -> dict[str, Any]:
+    # annotations on a log axis take log10 of the position (plotly's rule); shapes take the value
+    label = _label(x, text, y, anchor)
+    label["x"] = math.log10(x)
+    return label
+
+
+def _db_trace(values: np.ndarray) -> np.ndarray:
+    out = np.where(np.isfinite(values), values, RESPONSE_FLOOR_DB)
+    return np.maximum(out, RESPONSE_FLOOR_DB)
+
+
+def _reconstruction_filter(channel: Channel) -> flt.AnalogFilter | None:
+    spec = channel.filter
+    if spec is None or spec.order is None or spec.corner is None:
+        return None
+    try:
+        return flt.design(spec.family, spec.order, spec.corner, spec.ripple_db, spec.stopband_db)
+    except ValueError:
+        return None
+
+
+def _filter_name(filt: flt.AnalogFilter) -> str:
+    return f"{filt.family}, order {filt.order}, corner {_hz(filt.corner_hz)}"
+
+
+def filter_response_chart(result: ChannelResult) -> Chart | None:
+    """The analog filter's gain, -A(f) = 20 log10 |H(j 2 pi f)|, over the mask it must meet.
+
+    Input channels: the anti-aliasing filter of :class:`SamplingResult` against the allowed
+    passband loss (``flatness``) up to f_high and the required alias rejection from the stop
+    edge upward (fs - f_high, or f_mod - f_high on a delta-sigma converter, where the decimation
+    filter guards fs - f_high).  Output channels: the reconstruction filter against the loss the
+    filter must add at the first image fs - f_high (what the hold leaves over).  Group delay
+    tau(f) is on a second axis in µs.  Response from :func:`generator.dsp.filters.attenuation_db`
+    (Williams & Taylor; scipy.signal analog prototypes).
+    """
+    ch = result.channel
+    s, o = result.sampling, result.output
+    marks: list[tuple[float, str, str]] = []  # (frequency, label, colour)
+    if ch.kind == "input" and s is not None and s.filter is not None:
+        filt, fs, f_high = s.filter, s.rate_hz, s.band_high_hz
+        flatness, required, stop = s.flatness_db, s.required_alias_rejection_db, s.stop_edge_hz
+        marks.append((s.nyquist_hz, f"fs/2 = {_hz(s.nyquist_hz)}", MARK_COLOUR))
+        if s.first_alias_hz > 0:
+            marks.append((s.first_alias_hz, f"first alias {_hz(s.first_alias_hz)}", TONE_COLOUR))
+        if s.modulator_alias_hz:
+            marks.append((s.modulator_alias_hz, f"modulator alias {_hz(s.modulator_alias_hz)}", TONE_COLOUR))
+        what = "Anti-aliasing filter"
+        if s.delta_sigma:
+            sets = (f"On this delta-sigma converter the decimation filter rejects content near fs; the analog "
+                    f"filter's job is the modulator alias f_mod - f_high. The alias rejection is set by the "
+                    f"{s.alias_rejection_source}.")
+        else:
+            sets = f"The alias rejection is set by the {s.alias_rejection_source}."
+    elif ch.kind == "output" and o is not None:
+        designed = _reconstruction_filter(ch)
+        if designed is None:
+            return None
+        filt, fs, f_high = designed, o.rate_hz, o.band_high_hz
+        flatness, required, stop = o.flatness_db, o.filter_needed_at_image_db, o.first_image_hz
+        marks.append((fs / 2.0, f"fs/2 = {_hz(fs / 2.0)}", MARK_COLOUR))
+        marks.append((o.first_image_hz, f"first image {_hz(o.first_image_hz)}", TONE_COLOUR))
+        what = "Reconstruction filter"
+        sets = "The required loss at the first image is what the hold's own suppression leaves over."
+    else:
+        return None
+    if not (fs > 0 and f_high > 0):
+        return None
+
+    top = max([fs, filt.corner_hz, *(m[0] for m in marks), *([stop] if stop else [])])
+    f_lo, f_hi = min(f_high, filt.corner_hz) / 20.0, 3.0 * top
+    exact = [f_high, filt.corner_hz, *(m[0] for m in marks), *([stop] if stop else [])]
+    grid = np.unique(np.concatenate([np.geomspace(f_lo, f_hi, GRID_POINTS),
+                                     np.array([f for f in exact if f_lo <= f <= f_hi], dtype=float)]))
+    gain = _db_trace(-flt.attenuation_db(filt, grid))
+    delay_us = flt.group_delay_s(filt, grid) * 1e6
+
+    data: list[dict[str, Any]] = [
+        {"type": "scatter", "mode": "lines", "name": "allowed passband loss", "x": typed_array([f_lo, f_high]),
+         "y": typed_array([-flatness, -flatness]), "fill": "tozeroy", "fillcolor": MASK_PASS_COLOUR,
+         "line": {"color": "rgba(46,125,50,0.9)", "width": 1.5, "dash": "dash"},
+         "hovertemplate": _text(f"passband loss up to {flatness:g} dB below {_hz(f_high)}") + "<extra></extra>"},
+    ]
+    if required is not None and stop is not None and stop > 0:
+        data.append({"type": "scatter", "mode": "lines", "name": "required rejection",
+                     "x": typed_array([stop, f_hi]), "y": typed_array([-required, -required]),
+                     "fill": "tozeroy", "fillcolor": MASK_STOP_COLOUR,
+                     "line": {"color": TONE_COLOUR, "width": 1.5, "dash": "dash"},
+                     "hovertemplate": _text(f"at least {required:.1f} dB from {_hz(stop)} up")
+                     + "<extra></extra>"})
+    data.append({"type": "scatter", "mode": "lines", "name": "filter gain", "x": _curve(grid), "y": _curve(gain),
+                 "line": {"color": RESPONSE_COLOUR, "width": 2},
+                 "hovertemplate": "%{x:.4~s}Hz: %{y:.2f} dB<extra>gain</extra>"})
+    data.append({"type": "scatter", "mode": "lines", "name": "group delay", "x": _curve(grid),
+                 "y": _curve(delay_us), "yaxis": "y2", "line": {"color": DELAY_COLOUR, "width": 1.5, "dash": "dot"},
+                 "hovertemplate": "%{x:.4~s}Hz: %{y:.4g} µs<extra>group delay</extra>"})
+
+    shapes = [_vline(f, colour) for f, _, colour in marks]
+    annotations = [_log_label(f, text, 1.0 - 0.07 * i, "left") for i, (f, text, _) in enumerate(marks)]
+    y_low = min(-(required or 0.0) - 20.0, -40.0)
+    layout = _layout(
+        f"{what} over its mask",
+        _frequency_axis(type="log", range=[math.log10(f_lo), math.log10(f_hi)]),
+        {"title": {"text": "Gain (dB)"}, "range": [y_low, 5.0], "ticksuffix": " dB"},
+        yaxis2={"title": {"text": "Group delay (µs)"}, "overlaying": "y", "side": "right",
+                "rangemode": "tozero", "showgrid": False},
+        shapes=shapes,
+        annotations=annotations,
+    )
+    layout["margin"] = {"l": 64, "r": 64, "t": 48, "b": 56}
+    caption = (f"{_filter_name(filt)}. Green: the loss allowed in the band ({flatness:g} dB up to {_hz(f_high)}). "
+               + (f"Red: the rejection required ({required:.1f} dB from {_hz(stop)} up). " if required and stop else "")
+               + sets)
+    return Chart("chart-filter", "Filter response", {"data": data, "layout": layout}, caption)
+
+
+# ---------------------------------------------------------------------------------------------
+# Noise budget
+# ---------------------------------------------------------------------------------------------
+
+
+def noise_budget_chart(result: ChannelResult) -> Chart | None:
+    """Each noise contribution in dB relative to the signal (AmplitudeResult.budget, ADI MT-003),
+    against the floor the channel requires: -snr from the [signal] table."""
+    amp = result.amplitude
+    if amp is None:
+        return None
+    rows = [c for c in amp.budget if c.db is not None]
+    if not rows:
+        return None
+    ch = result.channel
+    names = [c.name for c in rows]
+    values = [float(c.db or 0.0) for c in rows]
+    hover = []
+    for c in rows:
+        parts = [f"{c.name}: {c.db:.1f} dB re signal"]
+        if c.volts is not None:
+            parts.append(f"{format_quantity(c.volts, 'V')} rms at the converter")
+        if c.units is not None:
+            parts.append(f"{format_in_unit(c.units, ch.unit)} rms")
+        hover.append("<br>".join(_text(p) for p in parts if p))
+    colours = [MARK_COLOUR if c.name == "total" else ALIAS_COLOUR for c in rows]
+    data: list[dict[str, Any]] = [
+        {"type": "bar", "orientation": "h", "name": "contribution", "x": typed_array(values), "y": names,
+         "text": hover, "hovertemplate": "%{text}<extra></extra>", "marker": {"color": colours}},
+    ]
+    shapes: list[dict[str, Any]] = []
+    annotations: list[dict[str, Any]] = []
+    snr = ch.signal.snr_db
+    lowest = min(values)
+    if snr is not None:
+        shapes.append(_vline(-snr, TONE_COLOUR))
+        annotations.append(_label(-snr, f"required floor -{snr:g} dB", 1.0, "left"))
+        lowest = min(lowest, -snr)
+    layout = _layout(
+        "Noise budget",
+        {"title": {"text": "Level relative to the signal (dB)"}, "ticksuffix": " dB",
+         "range": [lowest - 10.0, 0.0], "zeroline": False},
+        {"title": {"text": ""}, "autorange": "reversed", "automargin": True},
+        shapes=shapes,
+        annotations=annotations,
+        showlegend=False,
+        height=max(220, 80 + 40 * len(rows)),
+    )
+    caption = ("Each contribution's rms in the noise bandwidth, relative to the signal's rms; "
+               "bars further left are smaller.")
+    if snr is not None:
+        caption += f" The red line is the floor the channel requires (snr = {snr:g} dB)."
+    return Chart("chart-noise", "Noise budget", {"data": data, "layout": layout}, caption)
+
+
+# ---------------------------------------------------------------------------------------------
+# Trade-off: filter order against sample rate
+# ---------------------------------------------------------------------------------------------
+
+TRADE_RATES = 12
+"""Sample rates tried, log-spaced from 2.2 f_high to 20 f_high."""
+
+
+@lru_cache(maxsize=4096)
+def _least_order_cached(family: str, ratio: float, pass_db: float, stop_db: float) -> int | None:
+    # the least order depends only on f_stop / f_pass and the two losses, so designs are shared
+    d = flt.least_order(family, 1.0, ratio, pass_db, stop_db)
+    return None if d is None else d.order
+
+
+def trade_off_rates(f_high: float) -> np.ndarray:
+    """The sample rates the trade-off chart tries: TRADE_RATES log-spaced in [2.2, 20] x f_high."""
+    return np.geomspace(2.2 * f_high, 20.0 * f_high, TRADE_RATES)
+
+
+def trade_off_chart(result: ChannelResult) -> Chart | None:
+    """Least order per family (:func:`generator.dsp.filters.least_order`) meeting the channel's mask
+    at each sample rate: flatness at f_high, the required rejection at fs - f_high.  Not drawn for
+    delta-sigma channels, whose analog filter guards the modulator alias instead."""
+    s = result.sampling
+    if s is None or result.channel.kind != "input" or s.delta_sigma or s.required_alias_rejection_db is None:
+        return None
+    f_high = s.band_high_hz
+    if not f_high > 0 or not s.flatness_db > 0:
+        return None
+    stop_db = round(max(s.required_alias_rejection_db, s.flatness_db + 0.01), 9)
+    rates = trade_off_rates(f_high)
+    colours = ("#1565c0", "#2e7d32", "#ef6c00", "#6a1b9a", "#c62828")
+    data: list[dict[str, Any]] = []
+    for fam, colour in zip(flt.FAMILIES, colours, strict=True):
+        xs, ys = [], []
+        for fs in rates:
+            n = _least_order_cached(fam, round(float(fs) / f_high - 1.0, 12), s.flatness_db, stop_db)
+            if n is not None:
+                xs.append(float(fs))
+                ys.append(float(n))
+        if xs:
+            data.append({"type": "scatter", "mode": "lines+markers", "name": fam, "x": typed_array(xs),
+                         "y": typed_array(ys), "line": {"color": colour, "width": 1.5, "shape": "hv"},
+                         "hovertemplate": "%{x:.4~s}Hz: order %{y}<extra>" + fam + "</extra>"})
+    if not data:
+        return None
+    here = [(fam, d.order) for fam, d in s.least_orders.items() if d is not None]
+    if here:
+        data.append({"type": "scatter", "mode": "markers", "name": f"at this channel's rate {_hz(s.rate_hz)}",
+                     "x": typed_array([s.rate_hz] * len(here)), "y": typed_array([float(n) for _, n in here]),
+                     "text": [_text(f"{fam}: order {n}") for fam, n in here],
+                     "marker": {"color": "#000000", "size": 11, "symbol": "x"},
+                     "hovertemplate": "%{text}<extra></extra>"})
+    layout = _layout(
+        "Least filter order against sample rate",
+        _frequency_axis("Sample rate (Hz)", type="log"),
+        {"title": {"text": "Least order (poles)"}, "rangemode": "tozero", "dtick": 2},
+        shapes=[_vline(s.rate_hz, MARK_COLOUR, "solid")],
+        annotations=[_log_label(s.rate_hz, f" this channel {_hz(s.rate_hz)}", 1.0, "left")],
+    )
+    caption = (f"Fewest poles meeting {s.flatness_db:g} dB at {_hz(f_high)} and {stop_db:.1f} dB at fs - f_high. "
+               "A family missing at a rate needs more than 20 poles there.")
+    return Chart("chart-tradeoff", "Filter order against rate", {"data": data, "layout": layout}, caption)
+
+
+# ---------------------------------------------------------------------------------------------
+# Outputs: hold envelope and images
+# ---------------------------------------------------------------------------------------------
+
+HOLD_POINTS = 301
+"""Points of the hold envelope from 0 to HOLD_SPAN x fs (fs/2 falls on a grid point)."""
+HOLD_SPAN = 3
+
+
+def hold_chart(result: ChannelResult) -> Chart | None:
+    """Zero-order hold envelope 20 log10 |sinc(f / fs)| from 0 to 3 fs (ADI MT-017), the images of the
+    band top at k fs ± f_high, and the reconstruction filter's gain overlaid."""
+    o = result.output
+    if o is None or result.channel.kind != "output" or not o.rate_hz > 0:
+        return None
+    fs, f_high = o.rate_hz, o.band_high_hz
+    filt = _reconstruction_filter(result.channel)
+    zoh = o.hold == "zero-order"
+    if not zoh and filt is None:
+        return None
+    grid = np.linspace(0.0, HOLD_SPAN * fs, HOLD_POINTS)
+    with np.errstate(divide="ignore"):
+        envelope = _db_trace(20.0 * np.log10(np.abs(np.sinc(grid / fs)))) if zoh else np.zeros_like(grid)
+    data: list[dict[str, Any]] = []
+    if zoh:
+        data.append({"type": "scatter", "mode": "lines", "name": "hold |sinc(f/fs)|", "x": _curve(grid),
+                     "y": _curve(envelope), "line": {"color": HOLD_COLOUR, "width": 2},
+                     "hovertemplate": "%{x:.4~s}Hz: %{y:.2f} dB<extra>hold</extra>"})
+    filt_db = None
+    if filt is not None:
+        filt_db = _db_trace(-flt.attenuation_db(filt, grid))
+        data.append({"type": "scatter", "mode": "lines", "name": f"filter ({_filter_name(filt)})", "x": _curve(grid),
+                     "y": _curve(filt_db), "line": {"color": RESPONSE_COLOUR, "width": 1.5, "dash": "dot"},
+                     "hovertemplate": "%{x:.4~s}Hz: %{y:.2f} dB<extra>filter</extra>"})
+        if zoh:
+            data.append({"type": "scatter", "mode": "lines", "name": "hold and filter", "x": _curve(grid),
+                         "y": _curve(_db_trace(envelope + filt_db)), "line": {"color": "#000000", "width": 1},
+                         "hovertemplate": "%{x:.4~s}Hz: %{y:.2f} dB<extra>hold and filter</extra>"})
+    images = sorted(f for k in range(1, HOLD_SPAN + 1) for f in (k * fs - f_high, k * fs + f_high)
+                    if 0 < f <= HOLD_SPAN * fs)
+    levels = []
+    for f in images:
+        lv = 20.0 * math.log10(max(abs(float(np.sinc(f / fs))), 1e-10)) if zoh else 0.0
+        if filt is not None:
+            lv -= float(flt.attenuation_db(filt, f))
+        levels.append(max(lv, RESPONSE_FLOOR_DB))
+    data.append({"type": "scatter", "mode": "markers", "name": "images of the band top (k fs ± f_high)",
+                 "x": typed_array(images), "y": typed_array(levels),
+                 "text": [_text(f"image at {_hz(f)}: {lv:.1f} dB") for f, lv in zip(images, levels, strict=True)],
+                 "marker": {"color": TONE_COLOUR, "size": 9, "symbol": "diamond"},
+                 "hovertemplate": "%{text}<extra></extra>"})
+    shapes = [_rect(0.0, f_high, BAND_COLOUR), _vline(fs / 2.0, MARK_COLOUR, "solid")]
+    shapes += [_vline(f, TONE_COLOUR, "dot") for f in images]
+    annotations = [_label(fs / 2.0, f"fs/2 = {_hz(fs / 2.0)}")]
+    y_low = min(-80.0, *(lv - 10.0 for lv in levels)) if levels else -80.0
+    layout = _layout(
+        "Hold droop and images",
+        _frequency_axis(range=[0, HOLD_SPAN * fs], **_ticks([k * fs / 2.0 for k in range(2 * HOLD_SPAN + 1)], "Hz")),
+        {"title": {"text": "Gain (dB)"}, "range": [max(y_low, RESPONSE_FLOOR_DB), 5.0], "ticksuffix": " dB"},
+        shapes=shapes,
+        annotations=annotations,
+    )
+    caption = (f"Updating at {_hz(fs)}: the band (green) up to {_hz(f_high)} repeats as images at k·fs ± f_high "
+               "(red diamonds, level after the hold" + (" and the filter" if filt is not None else "") + ").")
+    if not zoh:
+        caption += " This output has no zero-order hold."
+    elif o.sinc_compensation:
+        caption += " Inverse-sinc compensation cancels the in-band droop; the images keep the hold's envelope."
+    return Chart("chart-hold", "Hold and images", {"data": data, "layout": layout}, caption)
+
+
+# ---------------------------------------------------------------------------------------------
+# Images: pixel aperture response
+# ---------------------------------------------------------------------------------------------
+
+MTF_POINTS = 201
+"""Points of the aperture response from 0 to 2x the spatial Nyquist frequency (Nyquist on a point)."""
+
+
+def aperture_chart(result: ChannelResult) -> Chart | None:
+    """Full-fill pixel aperture response |sinc(f p)| (Holst) to twice the spatial Nyquist 1/(2p),
+    with Nyquist and the required detail marked; spatial frequency in cycles/mm."""
+    im = result.image
+    if im is None or not im.pixel_pitch_m > 0:
+        return None
+    pitch, nyq = im.pixel_pitch_m, im.spatial_nyquist_cycles_per_m
+    grid = np.linspace(0.0, 2.0 * nyq, MTF_POINTS)
+    mtf = np.abs(np.sinc(grid * pitch))
+    per_mm = grid / 1000.0
+    data: list[dict[str, Any]] = [
+        {"type": "scatter", "mode": "lines", "name": "pixel aperture |sinc(f p)|", "x": _curve(per_mm),
+         "y": _curve(mtf), "line": {"color": RESPONSE_COLOUR, "width": 2},
+         "hovertemplate": "%{x:.4g} cycles/mm: %{y:.3f}<extra></extra>"},
+    ]
+    shapes = [_rect(nyq / 1000.0, 2.0 * nyq / 1000.0, FOLD_COLOUR), _vline(nyq / 1000.0, MARK_COLOUR, "solid")]
+    annotations = [_label(nyq / 1000.0, f" Nyquist {format_quantity(nyq, 'cycles/m')}", 1.0, "left")]
+    detail = result.channel.signal.detail_cycles_per_m
+    if detail is not None and detail > 0:
+        shapes.append(_vline(detail / 1000.0, TONE_COLOUR))
+        annotations.append(_label(detail / 1000.0, f"required detail {format_quantity(detail, 'cycles/m')} ",
+                                  0.93, "right"))
+        if detail <= 2.0 * nyq:
+            data.append({"type": "scatter", "mode": "markers", "name": "at the required detail",
+                         "x": typed_array([detail / 1000.0]), "y": typed_array([abs(float(np.sinc(detail * pitch)))]),
+                         "marker": {"color": TONE_COLOUR, "size": 10, "symbol": "diamond"},
+                         "hovertemplate": "%{x:.4g} cycles/mm: %{y:.3f}<extra>required detail</extra>"})
+    layout = _layout(
+        "Pixel aperture response",
+        {"title": {"text": "Spatial frequency (cycles/mm)"}, "range": [0, 2.0 * nyq / 1000.0], "zeroline": False},
+        {"title": {"text": "Modulation transfer (0 to 1)"}, "range": [0, 1.05]},
+        shapes=shapes,
+        annotations=annotations,
+    )
+    caption = (f"Pixel pitch {format_quantity(pitch, 'm')}, full fill: the response at Nyquist is 2/π = 0.637. "
+               "Detail beyond Nyquist (red) aliases to coarser patterns.")
+    return Chart("chart-aperture", "Pixel aperture", {"data": data, "layout": layout}, caption)
+
+
 ChartBuilder = Callable[[ChannelResult], "Chart | None"]
 
-CHANNEL_CHARTS: tuple[ChartBuilder, ...] = (folding_chart,)
+CHANNEL_CHARTS: tuple[ChartBuilder, ...] = (
+    folding_chart, filter_response_chart, trade_off_chart, noise_budget_chart, hold_chart, aperture_chart,
+)
 """The charts of a channel page, in page order.  Append new chart functions here."""
 
 

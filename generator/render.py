@@ -539,11 +539,28 @@ def totals(ctx: Context) -> Totals:
 Budgets = tuple[BudgetItem, ...]
 
 
+def _bar(label: str, used: float, limit: float, dim: str, status: str) -> Bar:
+    percent = 100.0 * used / limit if limit > 0 else 100.0
+    return Bar(label, format_quantity(used, dim), format_quantity(limit, dim), percent, status)
+
+
 def budget_items(ctx: Context, root: str) -> tuple[Budgets, Budgets, Budgets]:
     """Converters, links and stores with their facts and the channels that use them.
 
-    ``bars`` stays empty until utilisation is computed; the templates already draw it.
+    ``bars`` show utilisation from :attr:`SystemAnalysis.budgets`: a converter's sample-rate load
+    against its max rate, a link's load against its usable capacity (capacity less headroom), a
+    store's bytes for one recording against its capacity.  The percent is used / limit.
     """
+    budgets = ctx.analysis.budgets
+    conv_bars = {c.id: (_bar("sample-rate load", c.aggregate_rate_hz, c.max_rate_hz, "Hz",
+                              "error" if c.load > 1.0 else "ok"),) for c in budgets.converters}
+    link_bars = {lk.id: (_bar("load with overhead", lk.load_bps, lk.usable_bps, "bit/s",
+                               "error" if lk.load_bps > lk.capacity_bps
+                               else "warning" if lk.load_bps > lk.usable_bps else "ok"),)
+                 for lk in budgets.links}
+    store_bars = {st.id: (_bar("one recording", st.bytes_needed, st.capacity_bytes, "B",
+                               "error" if st.bytes_needed > st.capacity_bytes else "ok"),)
+                  for st in budgets.stores if st.bytes_needed is not None}
     system = ctx.analysis.spec.system
     on_converter: dict[str, list[Link]] = {}
     on_link: dict[str, list[Link]] = {}
@@ -564,14 +581,15 @@ def budget_items(ctx: Context, root: str) -> tuple[Budgets, Budgets, Budgets]:
         if c.link:
             facts.append(("link", c.link))
         converters.append(BudgetItem(c.id, f"converter-{slug(c.id)}", "converter", tuple(facts),
-                                     tuple(on_converter.get(c.id, ()))))
+                                     tuple(on_converter.get(c.id, ())), conv_bars.get(c.id, ())))
     links = []
     for lk in sorted(system.links.values(), key=lambda lk: lk.id):
         facts = [("capacity", format_quantity(lk.capacity_bps, "bit/s")), ("overhead", format_percent(lk.overhead)),
                  ("headroom", format_percent(lk.headroom))]
         if lk.store:
             facts.append(("records into", lk.store))
-        links.append(BudgetItem(lk.id, f"link-{slug(lk.id)}", "link", tuple(facts), tuple(on_link.get(lk.id, ()))))
+        links.append(BudgetItem(lk.id, f"link-{slug(lk.id)}", "link", tuple(facts), tuple(on_link.get(lk.id, ())),
+                                link_bars.get(lk.id, ())))
     stores = []
     for st in sorted(system.stores.values(), key=lambda s: s.id):
         facts = [("capacity", format_quantity(st.capacity_bytes, "B"))]
@@ -581,7 +599,8 @@ def budget_items(ctx: Context, root: str) -> tuple[Budgets, Budgets, Budgets]:
         if feeding:
             facts.append(("fed by", ", ".join(feeding)))
         chans = tuple(ch for lid in feeding for ch in on_link.get(lid, ()))
-        stores.append(BudgetItem(st.id, f"store-{slug(st.id)}", "store", tuple(facts), chans))
+        stores.append(BudgetItem(st.id, f"store-{slug(st.id)}", "store", tuple(facts), chans,
+                                 store_bars.get(st.id, ())))
     return tuple(converters), tuple(links), tuple(stores)
 
 

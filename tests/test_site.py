@@ -168,7 +168,7 @@ def test_overview_table_has_one_row_per_channel_with_sort_keys(demo_site: Path) 
 def test_folding_chart_data_on_a_page_decodes_to_the_alias_frequencies(demo_site: Path) -> None:
     page = parse(demo_site / "channels" / "TACHO-HSS.html")
     figs = {a["id"]: json.loads(text) for a, text in page.scripts if a.get("type") == "application/json"}
-    assert set(figs) == {"chart-folding-data"}
+    assert set(figs) == {"chart-folding-data", "chart-filter-data", "chart-tradeoff-data", "chart-noise-data"}
     fig = figs["chart-folding-data"]
     analysis = analyze(load_spec(DEMO))
     ch = analysis.result("TACHO-HSS").channel
@@ -214,13 +214,18 @@ def test_folding_chart_places_tones_where_they_fold(tmp_path: Path) -> None:
     # check-values table (Oppenheim & Schafer ch. 4, ADI MT-002): 7 kHz at 10 kS/s -> 3 kHz;
     # 15 kHz at 10 kS/s -> 5 kHz (zone 4, inverted)
     np.testing.assert_allclose(xs, [3000.0, 5000.0], rtol=1e-12)
-    ys = np.frombuffer(base64.b64decode(landed["y"]["bdata"]), dtype="<f8")
+    before = traces["interference tone (before the filter)"]
+    ys = np.frombuffer(base64.b64decode(before["y"]["bdata"]), dtype="<f8")
     # 1 V on a ±10 V converter at unity gain: 20 log10(1/10) = -20 dBFS (sine-referenced, AES17)
     np.testing.assert_allclose(ys, [-20.0, -20.0], atol=1e-9)
+    # where they land: both tones sit in the decimation filter's stopband (>= 0.5465 fs = 5.465 kHz from
+    # every multiple of the 6.144 MHz modulator rate), so each arrives 100 dB lower (system.toml of the fixture)
+    ys_after = np.frombuffer(base64.b64decode(landed["y"]["bdata"]), dtype="<f8")
+    np.testing.assert_allclose(ys_after, [-120.0, -120.0], atol=1e-9)
     assert "zone 4, inverted" in landed["text"][1]
     # the tone's source reaches plotly only escaped, and the JSON cannot close its <script>
     assert "<img" not in chart.to_json() and "&lt;img" in json.loads(chart.to_json())["data"][1]["text"][1]
-    assert [c.id for c in channel_charts(result)] == ["chart-folding"]
+    assert next(c.id for c in channel_charts(result)) == "chart-folding"
     tone = result.channel.interference[1]
     assert tone_dbfs(tone, result.channel) == pytest.approx(-20.0)
 
