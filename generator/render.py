@@ -26,7 +26,7 @@ from .charts import Chart, channel_charts
 from .model import Channel
 from .quantities import format_in_unit, format_percent, format_quantity
 from .report import counts
-from .rules import SEVERITIES, SEVERITY_RANK, Finding, Rule
+from .rules import SEVERITIES, SEVERITY_RANK, Finding, Rule, worst_status
 
 CAUTION_RULE = "caution"
 """Findings of this rule are shown in the channel's caution box rather than among its findings."""
@@ -263,20 +263,7 @@ class Context:
             for cid in f.channels:
                 self.by_channel.setdefault(cid, []).append(f)
         for r in self.analysis.channels:
-            self.status[r.channel.id] = _status(self.by_channel.get(r.channel.id, ()))
-
-
-def _status(findings: Iterable[Finding]) -> str:
-    """ok | warning | error: the worst unwaived finding (info does not count)."""
-    worst = "ok"
-    for f in findings:
-        if f.waived:
-            continue
-        if f.severity == "error":
-            return "error"
-        if f.severity == "warning":
-            worst = "warning"
-    return worst
+            self.status[r.channel.id] = worst_status(self.by_channel.get(r.channel.id, ()))
 
 
 # ---------------------------------------------------------------------------------------------

@@ -184,9 +184,14 @@ def all_rules() -> list[Rule]:
 
 def channel_status(findings: Iterable[Finding], channel_id: str) -> str:
     """ok | warning | error: the worst unwaived finding on the channel (info does not count)."""
+    return worst_status(f for f in findings if channel_id in f.channels)
+
+
+def worst_status(findings: Iterable[Finding]) -> str:
+    """ok | warning | error: the worst unwaived finding (info does not count)."""
     worst = "ok"
     for f in findings:
-        if f.waived or channel_id not in f.channels:
+        if f.waived:
             continue
         if f.severity == "error":
             return "error"
