@@ -1,0 +1,36 @@
+"""Hostile headers the fuzz corpus found: they must end as located input errors, never a crash."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import pytest
+
+from generator.cli import EXIT_BAD_INPUT, main
+
+
+def _with_header(tree: Path, extra: str) -> None:
+    acc = tree / "channels" / "ACC-1.md"
+    acc.write_text(acc.read_text().replace('kind = "input"\n', f'kind = "input"\n{extra}\n'))
+
+
+def test_deeply_nested_arrays_are_refused(minimal_tree: Path, capsys: pytest.CaptureFixture[str]) -> None:
+    # tomllib recurses once per level: 5,000 brackets would raise RecursionError without the limit
+    _with_header(minimal_tree, "deep = " + "[" * 5000 + "]" * 5000)
+    assert main(["check", str(minimal_tree)]) == EXIT_BAD_INPUT
+    err = capsys.readouterr().err
+    assert "nested more than 32 deep" in err and "Traceback" not in err
+
+
+def test_long_dotted_key_is_refused(minimal_tree: Path, capsys: pytest.CaptureFixture[str]) -> None:
+    _with_header(minimal_tree, ".".join(["a"] * 2000) + " = 1")
+    assert main(["check", str(minimal_tree)]) == EXIT_BAD_INPUT
+    assert "a dotted key of more than 32 parts" in capsys.readouterr().err
+
+
+def test_absurd_gain_in_db_is_an_input_error(minimal_tree: Path, capsys: pytest.CaptureFixture[str]) -> None:
+    # 10 ** (dB / 20) leaves the float range past about 6,000 dB (float max 1.8e308 = 10 ** 308.25)
+    acc = minimal_tree / "channels" / "ACC-1.md"
+    acc.write_text(acc.read_text().replace('converter = "ds"', 'converter = "ds"\ngain = "7000 dB"'))
+    assert main(["check", str(minimal_tree)]) == EXIT_BAD_INPUT
+    assert "beyond any real gain" in capsys.readouterr().err
