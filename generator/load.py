@@ -14,6 +14,7 @@ import re
 import tomllib
 from collections.abc import Callable, Iterator, Mapping
 from dataclasses import dataclass, field
+from functools import cached_property
 from pathlib import Path
 from types import MappingProxyType
 from typing import Any
@@ -136,10 +137,65 @@ _TOML_AT = re.compile(r"\s*\(at line (\d+), column (\d+)\)\s*$")
 _TOML_END = re.compile(r"\s*\(at end of document\)\s*$")
 
 
+MAX_NESTING = 32
+"""Deepest nesting of arrays and tables, and most parts in one dotted key, a spec may use.
+
+Real spec files need three or four.  The limit is checked before tomllib sees the text: tomllib
+recurses once per level (thousands of ``[`` raise RecursionError) and joins dotted keys in
+quadratic time (a 100 kB key ``a.a.a...`` took minutes, found by the fuzz corpus).
+"""
+
+# Strings and comments are skipped whole, so brackets and dots inside them do not count.
+_NEST_TOKEN = re.compile(
+    r'"""(?:\\[\s\S]|[^\\])*?"""'  # multi-line basic string
+    r"|'''[\s\S]*?'''"  # multi-line literal string
+    r'|"(?:\\.|[^"\\\n])*"'  # basic string
+    r"|'[^'\n]*'"  # literal string
+    r"|#[^\n]*"  # comment
+    r"|[\[\]{}.=,\n]"  # what nests, dots, assigns or separates
+)
+
+
+def _check_nesting(text: str, first_line: int) -> None:
+    """Raise a located :class:`SpecError` where nesting or a dotted key goes past :data:`MAX_NESTING`."""
+    depth = dots = 0
+    line = first_line
+    for m in _NEST_TOKEN.finditer(text):
+        tok = m.group(0)
+        if tok in "[{":
+            depth += 1
+            dots = 0
+            if depth > MAX_NESTING:
+                break
+        elif tok in "]}":
+            depth = max(depth - 1, 0)
+            dots = 0
+        elif tok == ".":
+            dots += 1  # a float's point counts too; the limit leaves room for it
+            if dots >= MAX_NESTING:
+                break
+        elif tok in "=,\n":
+            dots = 0
+        line += tok.count("\n")
+    else:
+        return
+    lines = text.split("\n")
+    index = line - first_line
+    src = lines[index][:200] if 0 <= index < len(lines) else None
+    what = (f"arrays or tables nested more than {MAX_NESTING} deep" if depth > MAX_NESTING
+            else f"a dotted key of more than {MAX_NESTING} parts")
+    raise SpecError(f"{what}; a spec file needs only a few levels", line=line, source_line=src)
+
+
 def parse_toml(text: str, first_line: int = 1) -> dict[str, Any]:
     """tomllib.loads, with its error turned into a located :class:`SpecError`."""
+    _check_nesting(text, first_line)
     try:
         return tomllib.loads(text)
+    except RecursionError:
+        # a fallback only: _check_nesting stops deep nesting long before Python's stack limit
+        raise SpecError(f"arrays or tables nested too deeply (the limit is {MAX_NESTING})",
+                        line=first_line) from None
     except tomllib.TOMLDecodeError as exc:
         msg = str(exc)
         line = col = None
@@ -202,9 +258,14 @@ class _Source:
         line, col = self.where(path)
         self.add(SpecError(message), line, col)
 
+    @cached_property
+    def lines(self) -> list[str]:
+        # split once: a file with thousands of problems used to split the whole text for each one
+        return self.text.split("\n")
+
     def add(self, err: SpecError, line: int | None = None, col: int | None = None) -> None:
         line = err.line or line
-        lines = self.text.split("\n")
+        lines = self.lines
         src = lines[line - 1][:200] if line and 0 < line <= len(lines) else None
         self.problems.append(err.located(self.path, line, col or None, src))
 
@@ -287,6 +348,9 @@ def convert(key: Key, value: object, unit: Unit | None, label: str) -> Any:
                 raise SpecError(f"{label}: expected a finite number, found {value}")
         elif isinstance(value, str):
             q = parse_quantity(value, ("dB", "1"), label)
+            if q.dim == "dB" and abs(q.value) > 6000:
+                # 10 ** (dB / 20) overflows a float past about 6000 dB (found by the fuzz corpus)
+                raise SpecError(f"{label}: \"{value}\" is beyond any real gain; expected a gain such as \"20 dB\"")
             number = 10 ** (q.value / 20) if q.dim == "dB" else q.value
         else:
             raise SpecError(f"{label}: expected a number (V/V) or a gain in dB such as \"20 dB\", "
@@ -392,13 +456,15 @@ def _load_system(root: Path, problems: list[SpecError]) -> System | None:
     text = _read_file(path, SYSTEM_FILE, problems)
     if text is None:
         return None
-    src = _Source(SYSTEM_FILE, text, locate_keys(text))
+    src = _Source(SYSTEM_FILE, text)
     try:
         raw = parse_toml(text)
     except SpecError as err:
         src.add(err)
         problems.extend(src.problems)
         return None
+    # located after parsing, so the key scan only sees text within the nesting limit
+    src.positions = locate_keys(text)
     for name in raw:
         if name not in schema.SYSTEM_TABLES:
             src.problem(name, f"unknown table [{name}] in {SYSTEM_FILE}"
@@ -520,8 +586,9 @@ def _load_channel(path: Path, rel: str, system: System | None, problems: list[Sp
     src = _Source(rel, text)
     try:
         first, header, body = split_header(text)
-        src.positions = locate_keys(header, first)
         raw = parse_toml(header, first)
+        # located after parsing, so the key scan only sees text within the nesting limit
+        src.positions = locate_keys(header, first)
     except SpecError as err:
         src.add(err)
         problems.extend(src.problems)
