@@ -11,7 +11,7 @@ from __future__ import annotations
 
 import argparse
 import sys
-from collections.abc import Sequence
+from collections.abc import Callable, Sequence
 from pathlib import Path
 
 from . import __version__
@@ -65,11 +65,28 @@ def fails(findings: Sequence[Finding], fail_on: str) -> bool:
     return any(not f.waived and SEVERITY_RANK[f.severity] <= limit for f in findings)
 
 
+def _write(text: str, ascii_text: Callable[[], str] | None = None) -> None:
+    """Write to stdout even where its encoding lacks µ, ±, √ or ² (an ASCII console or pipe).
+
+    Such a stream used to end the run with a UnicodeEncodeError traceback.  ``ascii_text``
+    gives an all-ASCII rendering that keeps the output's format (JSON with \\u escapes);
+    without it, unencodable characters are written as backslash escapes.
+    """
+    try:
+        sys.stdout.write(text)
+    except UnicodeEncodeError:
+        encoding = sys.stdout.encoding or "ascii"
+        fallback = ascii_text() if ascii_text else text
+        sys.stdout.write(fallback.encode(encoding, "backslashreplace").decode(encoding))
+
+
 def _cmd_check(args: argparse.Namespace) -> int:
     analysis = _load(args.specs)
     findings = run_rules(analysis)
-    out = to_json(analysis, findings) if args.format == "json" else to_text(analysis, findings)
-    sys.stdout.write(out)
+    if args.format == "json":
+        _write(to_json(analysis, findings), lambda: to_json(analysis, findings, ascii_only=True))
+    else:
+        _write(to_text(analysis, findings))
     return EXIT_FINDINGS if fails(findings, args.fail_on) else EXIT_OK
 
 
@@ -80,11 +97,11 @@ def _cmd_rules(args: argparse.Namespace) -> int:
         if not found:
             raise SpecError(f"no rule '{args.rule}'; 'specfold rules' lists them")
         r = found[0]
-        print(f"{r.id} ({r.severity}): {r.title}\n\n{r.explanation}")
+        _write(f"{r.id} ({r.severity}): {r.title}\n\n{r.explanation}\n")
         return EXIT_OK
     width = max(len(r.id) for r in rules)
     for r in rules:
-        print(f"{r.id:<{width}}  {r.severity:<7}  {r.title}")
+        _write(f"{r.id:<{width}}  {r.severity:<7}  {r.title}\n")
     return EXIT_OK
 
 
