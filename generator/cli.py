@@ -13,7 +13,7 @@ import argparse
 import os
 import sys
 import tempfile
-from collections.abc import Sequence
+from collections.abc import Callable, Sequence
 from pathlib import Path
 
 from . import __version__
@@ -91,18 +91,32 @@ def _repo_prefix(specs: str) -> str:
         return Path(os.path.relpath(path)).as_posix()
 
 
+def _write(text: str, ascii_text: Callable[[], str] | None = None) -> None:
+    """Write to stdout even where its encoding lacks µ, ±, √ or ² (an ASCII console or pipe).
+
+    Such a stream used to end the run with a UnicodeEncodeError traceback.  ``ascii_text``
+    gives an all-ASCII rendering that keeps the output's format (JSON with \\u escapes);
+    without it, unencodable characters are written as backslash escapes.
+    """
+    try:
+        sys.stdout.write(text)
+    except UnicodeEncodeError:
+        encoding = sys.stdout.encoding or "ascii"
+        fallback = ascii_text() if ascii_text else text
+        sys.stdout.write(fallback.encode(encoding, "backslashreplace").decode(encoding))
+
+
 def _cmd_check(args: argparse.Namespace) -> int:
     analysis = _load(args.specs)
     findings = run_rules(analysis)
     if args.format == "json":
-        out = to_json(analysis, findings)
+        _write(to_json(analysis, findings), lambda: to_json(analysis, findings, ascii_only=True))
     elif args.format == "junit":
-        out = to_junit(analysis, findings, args.fail_on, _repo_prefix(args.specs))
+        _write(to_junit(analysis, findings, args.fail_on, _repo_prefix(args.specs)))
     elif args.format == "sarif":
-        out = to_sarif(analysis, findings, _repo_prefix(args.specs))
+        _write(to_sarif(analysis, findings, _repo_prefix(args.specs)))
     else:
-        out = to_text(analysis, findings)
-    sys.stdout.write(out)
+        _write(to_text(analysis, findings))
     return EXIT_FINDINGS if fails(findings, args.fail_on) else EXIT_OK
 
 
@@ -112,8 +126,10 @@ def _cmd_diff(args: argparse.Namespace) -> int:
         head = spec_diff.load_side(args.head or args.specs, Path(scratch) / "head", args.specs)
         result = spec_diff.compare(base, head)
     render = {"json": spec_diff.to_json, "markdown": spec_diff.to_markdown}.get(args.format, spec_diff.to_text)
-    sys.stdout.write(render(result))
+    _write(render(result))
     return EXIT_FINDINGS if spec_diff.introduces(result, args.fail_on) else EXIT_OK
+
+
 def _progress_bar(done: int, total: int, what: str) -> None:
     width = 30
     filled = width * done // max(total, 1)
@@ -143,11 +159,11 @@ def _cmd_rules(args: argparse.Namespace) -> int:
         if not found:
             raise SpecError(f"no rule '{args.rule}'; 'specfold rules' lists them")
         r = found[0]
-        print(f"{r.id} ({r.severity}): {r.title}\n\n{r.explanation}")
+        _write(f"{r.id} ({r.severity}): {r.title}\n\n{r.explanation}\n")
         return EXIT_OK
     width = max(len(r.id) for r in rules)
     for r in rules:
-        print(f"{r.id:<{width}}  {r.severity:<7}  {r.title}")
+        _write(f"{r.id:<{width}}  {r.severity:<7}  {r.title}\n")
     return EXIT_OK
 
 

@@ -279,6 +279,19 @@ def _dims_for(key: Key, unit: Unit | None) -> tuple[str, ...]:
     return tuple(dict.fromkeys(out))
 
 
+SI_LIMIT = 1e30
+"""Largest magnitude (and inverse of the smallest non-zero one) of a value in SI units.
+
+Nothing a data-acquisition spec describes comes near it (100 GHz is 1e11, 1 fs is 1e-15); past it
+the formulas only overflow, so such a value is refused as a typing slip."""
+
+
+def _check_physical(number: float, label: str) -> None:
+    if abs(number) > SI_LIMIT or 0 < abs(number) < 1 / SI_LIMIT:
+        raise SpecError(f"{label}: {number:g} in SI units is outside what a spec can mean "
+                        f"({1 / SI_LIMIT:g} to {SI_LIMIT:g}); check the number and its prefix")
+
+
 def _check_bounds(key: Key, number: float, label: str) -> None:
     if key.positive and not number > 0:
         raise SpecError(f"{label}: must be greater than zero, found {number:g}")
@@ -350,7 +363,7 @@ def convert(key: Key, value: object, unit: Unit | None, label: str) -> Any:
             q = parse_quantity(value, ("dB", "1"), label)
             if q.dim == "dB" and abs(q.value) > 6000:
                 # 10 ** (dB / 20) overflows a float past about 6000 dB (found by the fuzz corpus)
-                raise SpecError(f"{label}: {value!r} is beyond any real gain; expected a gain such as \"20 dB\"")
+                raise SpecError(f"{label}: \"{value}\" is beyond any real gain; expected a gain such as \"20 dB\"")
             number = 10 ** (q.value / 20) if q.dim == "dB" else q.value
         else:
             raise SpecError(f"{label}: expected a number (V/V) or a gain in dB such as \"20 dB\", "
@@ -364,6 +377,7 @@ def convert(key: Key, value: object, unit: Unit | None, label: str) -> Any:
                             f"found {_describe(value)}")
         q = parse_quantity(value, dims, label)
         if q.dim not in ("dB", "dBFS"):
+            _check_physical(q.value, label)
             _check_bounds(key, q.value, label)
         elif key.positive and q.value < 0:
             raise SpecError(f"{label}: must not be negative, found {value}")
@@ -371,12 +385,17 @@ def convert(key: Key, value: object, unit: Unit | None, label: str) -> Any:
     if kind == schema.SPAN:
         if not isinstance(value, str):
             raise SpecError(f"{label}: expected a range in quotes such as {key.example}, found {_describe(value)}")
-        return parse_span(value, dims, label)
+        span = parse_span(value, dims, label)
+        _check_physical(span.low, label)
+        _check_physical(span.high, label)
+        return span
     if kind == schema.PAIR:
         if not isinstance(value, list) or len(value) != 2 or not all(isinstance(v, str) for v in value):
             raise SpecError(f"{label}: expected two values with units such as {key.example}, "
                             f"found {_describe(value)}")
         pair = tuple(parse_quantity(v, dims, label).value for v in value)
+        for number in pair:
+            _check_physical(number, label)
         if key.positive and min(pair) <= 0:
             raise SpecError(f"{label}: both values must be greater than zero")
         if min(pair) < 0:

@@ -99,9 +99,10 @@ def spec_document(analysis: SystemAnalysis, findings: list[Finding]) -> dict[str
     return doc
 
 
-def to_json(analysis: SystemAnalysis, findings: list[Finding]) -> str:
-    """Deterministic JSON text of :func:`spec_document`."""
-    return json.dumps(spec_document(analysis, findings), indent=2, ensure_ascii=False, allow_nan=False) + "\n"
+def to_json(analysis: SystemAnalysis, findings: list[Finding], ascii_only: bool = False) -> str:
+    """Deterministic JSON text of :func:`spec_document`; ``ascii_only`` writes µ, ± and the like as \\u escapes."""
+    doc = spec_document(analysis, findings)
+    return json.dumps(doc, indent=2, ensure_ascii=ascii_only, allow_nan=False) + "\n"
 
 
 def counts(findings: Iterable[Finding]) -> dict[str, int]:

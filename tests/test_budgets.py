@@ -300,3 +300,11 @@ def test_demo_budgets() -> None:
     assert net.payload_bps == pytest.approx(expected)
     assert net.utilisation == pytest.approx(expected * 1.08 / 100e6)
     assert all(c.ok for c in a.budgets.clocks)
+
+
+def test_dividers_of_absurd_rates_are_none_not_a_crash() -> None:
+    # a rate of 5e-321 Hz from 24.576 MHz needs a divider past 2^63: no integer divider exists [DER]
+    from generator.dsp import budgets as b
+
+    assert b.exact_divider(24.576e6, 5e-321) is None
+    assert b.nearest_divider(24.576e6, 5e-321, divider_range=(4, 65536)) == 65536

@@ -267,3 +267,10 @@ def test_simulated_sinad_and_enob_by_fft() -> None:
     sinad = 10 * np.log10(power[cycles] / (power[1:].sum() - power[cycles]))
     assert abs(sinad - 73.974) < 0.01
     assert abs(q.enob(float(sinad)) - 12.0) < 0.02
+
+
+def test_power_sum_survives_contributions_beyond_float_range() -> None:
+    # -10 log10(10^(1e4/10) + 10^(-9.8)) = -1e4 dB to double precision (algebra: the larger term dominates)
+    assert q.power_sum_snr_db([-1e4, 98.0]) == pytest.approx(-1e4, rel=1e-12)
+    # and the ordinary case still matches check-values section 4: 74 + 74 -> 70.9897 dB [MT-003]
+    assert q.power_sum_snr_db([74.0, 74.0]) == pytest.approx(70.9897, rel=1e-5)

@@ -34,3 +34,21 @@ def test_absurd_gain_in_db_is_an_input_error(minimal_tree: Path, capsys: pytest.
     acc.write_text(acc.read_text().replace('converter = "ds"', 'converter = "ds"\ngain = "7000 dB"'))
     assert main(["check", str(minimal_tree)]) == EXIT_BAD_INPUT
     assert "beyond any real gain" in capsys.readouterr().err
+
+
+@pytest.mark.parametrize("value", ['"1e-308 µε"', '"1.7976931348623157e308 Hz"'])
+def test_values_beyond_any_physical_meaning_are_refused(minimal_tree: Path, value: str,
+                                                        capsys: pytest.CaptureFixture[str]) -> None:
+    # found by the fuzz corpus: such values overflowed log2, floor() and divider searches downstream
+    acc = minimal_tree / "channels" / "ACC-1.md"
+    key = "resolution" if "µε" in value else "peak"
+    text = acc.read_text()
+    if key == "resolution":
+        acc.write_text(text.replace('unit = "g"', 'unit = "µε"').replace('peak = "20 g"', 'peak = "200 µε"')
+                       .replace('sensitivity = "100 mV/g"', 'sensitivity = "2 µV/µε"')
+                       .replace('peak = "200 µε"', f'peak = "200 µε"\nresolution = {value}'))
+    else:
+        acc.write_text(text.replace('band = ["2 Hz", "10 kHz"]', f'band = ["2 Hz", {value}]'))
+    assert main(["check", str(minimal_tree)]) == EXIT_BAD_INPUT
+    err = capsys.readouterr().err
+    assert "outside what a spec can mean" in err and "Traceback" not in err

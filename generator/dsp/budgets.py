@@ -81,7 +81,10 @@ def exact_divider(clock_hz: float, rate_hz: float, rel_tol: float = 1e-9) -> int
     """The integer d with clock / d == rate (to ``rel_tol``), else None [DER]."""
     if rate_hz <= 0.0 or clock_hz <= 0.0:
         return None
-    d = round(clock_hz / rate_hz)
+    ratio = clock_hz / rate_hz
+    if not ratio < 2.0**63:  # no integer divider that large exists (and inf would not round)
+        return None
+    d = round(ratio)
     if d >= 1 and math.isclose(clock_hz / d, rate_hz, rel_tol=rel_tol):
         return d
     return None
@@ -111,7 +114,7 @@ def nearest_divider(
     if dividers:
         candidates = [d for d in dividers if lo <= d <= hi]
     else:
-        ideal = clock_hz / target_hz
+        ideal = min(clock_hz / target_hz, float(hi)) if target_hz > 0 else float(hi)
         candidates = sorted({min(max(d, lo), hi) for d in (math.floor(ideal), math.ceil(ideal))})
     if not candidates:
         return None

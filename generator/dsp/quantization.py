@@ -143,7 +143,8 @@ def enob(sinad_db: float) -> float:
 
 def bits_for_lsb(full_scale_range: float, wanted_lsb: float) -> int:
     """Fewest bits whose LSB = FSR / 2^N is no coarser than ``wanted_lsb``: ceil(log2(FSR / q))."""
-    return max(1, math.ceil(math.log2(full_scale_range / wanted_lsb) - 1e-12))
+    # as a difference of logs: the ratio itself can overflow for a tiny wanted LSB
+    return max(1, math.ceil(math.log2(full_scale_range) - math.log2(wanted_lsb) - 1e-12))
 
 
 # -------------------------------------------------------------------------------------- jitter
@@ -176,8 +177,16 @@ def power_sum_snr_db(snrs_db: Iterable[float]) -> float:
 
     Each SNR_i must be relative to the same signal.  An empty list gives +inf.
     """
-    total = math.fsum(math.pow(10.0, -s / 10.0) for s in snrs_db)
-    return math.inf if total == 0 else -power_db(total)
+    # Summed relative to the largest term, so contributions far beyond a float's range (an SNR of
+    # -1e4 dB from an absurd jitter) neither overflow nor vanish.
+    exps = [-s / 10.0 for s in snrs_db]
+    if not exps:
+        return math.inf
+    top = max(exps)
+    if math.isinf(top):
+        return -top * 10.0
+    total = math.fsum(math.pow(10.0, e - top) for e in exps)
+    return -10.0 * (top + math.log10(total))
 
 
 def noise_from_density(density: float, bandwidth_hz: float) -> float:

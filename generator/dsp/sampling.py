@@ -44,7 +44,9 @@ def alias_frequency(f_hz: float, rate_hz: float) -> float:
 
 def nyquist_zone(f_hz: float, rate_hz: float) -> int:
     """Nyquist zone of ``f_hz``: z = floor(2 f / fs) + 1; zone 1 is 0..fs/2 [MT-002]."""
-    return math.floor(2.0 * f_hz / rate_hz) + 1
+    half_periods = 2.0 * (f_hz / rate_hz)
+    # zones past 2^62 are all alike to a reader; the cap keeps floor() finite
+    return math.floor(min(half_periods, 2.0**62)) + 1
 
 
 def is_inverted(f_hz: float, rate_hz: float) -> bool:

@@ -1,0 +1,123 @@
+"""The fuzz corpus: thousands of broken copies of the demo files never break the tool.
+
+Every mutant from tests/fuzz.py (seeded, so every run sees the same bytes) is written into a
+spec tree and checked in process with ``generator.cli.main``: the run must end with exit 0, 1
+or 2, print no traceback, raise nothing, and finish within the per-file time bound.  A sample
+goes through the real command line too.  Files the corpus once broke the tool with are kept
+under tests/data/fuzz-regressions and checked on every run.
+"""
+
+from __future__ import annotations
+
+import os
+import re
+import shutil
+import subprocess
+import sys
+import time
+from pathlib import Path
+
+import pytest
+
+from generator.cli import main
+
+from . import fuzz
+from .conftest import DATA, DEMO, ROOT
+
+CORPUS = fuzz.corpus()
+SUBPROCESS_SAMPLE = 30
+
+
+def test_corpus_is_large_and_repeatable() -> None:
+    total = sum(len(group) for group in CORPUS.values())
+    assert total >= 2000
+    # the same seed gives the same bytes; another seed gives other bytes
+    again = fuzz.corpus()
+    assert all(a.data == b.data for t in CORPUS for a, b in zip(CORPUS[t], again[t], strict=True))
+    other = fuzz.corpus(seed=fuzz.SEED + 1)
+    assert any(a.data != b.data for t in CORPUS for a, b in zip(CORPUS[t], other[t], strict=True))
+    # every mutation kind is exercised
+    used = {step for group in CORPUS.values() for m in group for step in m.name.split(":")[1].split("+")}
+    assert used == {op.__name__ for op in fuzz.OPERATORS}
+
+
+@pytest.mark.parametrize("target", list(CORPUS), ids=list(CORPUS))
+def test_mutants_of_one_file(target: str, tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
+    tree = fuzz.base_tree(target, tmp_path / "specs")
+
+    def check(argv: list[str]) -> tuple[int | None, str, str, str | None]:
+        crash = None
+        code: int | None = None
+        try:
+            code = main(argv)
+        except SystemExit as exc:  # argparse; not expected with these arguments
+            code = exc.code if isinstance(exc.code, int) else None
+        except Exception as exc:  # the corpus exists to find these
+            crash = repr(exc)[:300]
+        out, err = capsys.readouterr()
+        return code, out, err, crash
+
+    failures = []
+    codes = set()
+    for outcome in fuzz.run_mutants(CORPUS[target], tree, check):
+        codes.add(outcome.code)
+        problems = outcome.problems()
+        if problems:
+            failures.append(f"{outcome.mutant.name}: {'; '.join(problems)}")
+    assert not failures, f"{len(failures)} bad runs (reproduce with python -m tests.fuzz):\n" + "\n".join(failures)
+    # the corpus reaches both the loader's refusals and the checker itself
+    assert 2 in codes and codes & {0, 1}
+
+
+def _sample(n: int) -> list[fuzz.Mutant]:
+    flat = [m for group in CORPUS.values() for m in group]
+    step = len(flat) // n
+    return flat[::step][:n]
+
+
+def test_mutants_through_the_real_command_line(tmp_path: Path) -> None:
+    # a subprocess costs the imports each time, so only a sample goes this way
+    env = {**os.environ, "PYTHONPATH": str(ROOT)}
+    failures = []
+    seen_codes = set()
+    for i, mutant in enumerate(_sample(SUBPROCESS_SAMPLE)):
+        tree = fuzz.base_tree(mutant.target, tmp_path / f"t{i}")
+        (tree / mutant.target).write_bytes(mutant.data)
+        argv = [sys.executable, "-m", "generator", "check", str(tree)] + (["--format", "json"] if i % 2 else [])
+        start = time.perf_counter()
+        proc = subprocess.run(argv, cwd=ROOT, env=env, capture_output=True, text=True, timeout=60)
+        outcome = fuzz.Outcome(mutant, proc.returncode, proc.stdout, proc.stderr, 0.0)
+        problems = outcome.problems()
+        took = time.perf_counter() - start
+        if took > 10 * fuzz.TIME_BOUND_S:  # the bound plus the interpreter's start and imports
+            problems.append(f"took {took:.1f} s")
+        if problems:
+            failures.append(f"{mutant.name}: {'; '.join(problems)}")
+        seen_codes.add(proc.returncode)
+    assert not failures, "\n".join(failures)
+    assert 2 in seen_codes
+
+
+REGRESSIONS = sorted(p for p in (DATA / "fuzz-regressions").iterdir() if p.is_dir())
+_EXPECTED_LINE = re.compile(r"^(?P<file>[^:]+):(?P<line>\d+): (?P<fragment>.+)$")
+
+
+@pytest.mark.parametrize("case", REGRESSIONS, ids=[p.name for p in REGRESSIONS])
+def test_fuzz_regression(case: Path, tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
+    tree = tmp_path / "specs"
+    shutil.copytree(DEMO, tree)
+    for path in case.rglob("*"):
+        if path.is_file() and path.name != "expected.txt":
+            shutil.copyfile(path, tree / path.relative_to(case))
+    expected = (case / "expected.txt").read_text().splitlines()
+    start = time.perf_counter()
+    code = main(["check", str(tree)])
+    took = time.perf_counter() - start
+    _, err = capsys.readouterr()
+    assert f"exit {code}" == expected[0], err
+    assert took < fuzz.TIME_BOUND_S
+    assert "Traceback" not in err
+    for line in expected[1:]:
+        m = _EXPECTED_LINE.match(line)
+        assert m, f"malformed expected.txt line {line!r}"
+        assert f"{m['file']}:{m['line']}:" in err and m["fragment"] in err, err[:2000]
