@@ -339,19 +339,40 @@ def format_figure(key: str, value: FigureValue, channel: Channel) -> str:
         except ValueError:
             return f"{value:g}"
     if isinstance(value, dict):
-        return ", ".join(f"{k}: {_plain(v)}" for k, v in value.items())
+        return "; ".join(f"{_label(k)} {_plain(v, k)}" for k, v in value.items())
     if isinstance(value, list):
-        return ", ".join(_plain(v) for v in value)
+        return "; ".join(_plain(v) for v in value)
     return str(value)
 
 
-def _plain(value: Any) -> str:
+# Small objects among the figures (a filter, the least order per family) carry SI suffixes on
+# their keys like the figures themselves; these show their values with units.
+_SUFFIX_DIMS = (("_hz", "Hz"), ("_dbfs", "dBFS"), ("_db", "dB"), ("_s", "s"), ("_m", "m"), ("_volts", "V"),
+                ("_bps", "bit/s"), ("_bytes", "B"))
+
+
+def _label(key: str) -> str:
+    for suffix, _ in _SUFFIX_DIMS:
+        if key.endswith(suffix):
+            key = key[: -len(suffix)]
+            break
+    return key.replace("_", " ") + ":"
+
+
+def _plain(value: Any, key: str = "") -> str:
     if value is None:
         return "none"
-    if isinstance(value, float):
-        return _number(value) if math.isfinite(value) else str(value)
+    if isinstance(value, bool):
+        return "yes" if value else "no"
+    if isinstance(value, int | float):
+        if not math.isfinite(value):
+            return str(value)
+        for suffix, dim in _SUFFIX_DIMS:
+            if key.endswith(suffix):
+                return format_quantity(float(value), dim)
+        return _number(float(value)) if isinstance(value, float) else str(value)
     if isinstance(value, dict):
-        return "{" + ", ".join(f"{k}: {_plain(v)}" for k, v in value.items()) + "}"
+        return "(" + ", ".join(f"{_label(k)} {_plain(v, k)}" for k, v in value.items()) + ")"
     if isinstance(value, list):
         return "[" + ", ".join(_plain(v) for v in value) + "]"
     return str(value)

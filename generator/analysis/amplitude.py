@@ -24,7 +24,7 @@ PEAK_VOLTS = figure(
     "peak_volts", "Peak at the converter", "V", "V_pk = peak x sensitivity x gain", "requirement; sensor data"
 )
 RANGE_USAGE = figure(
-    "range_usage", "Share of full scale used", "", "V_pk / full-scale peak", "definition"
+    "range_usage", "Share of full scale used", "%", "V_pk / full-scale peak", "definition"
 )
 HEADROOM = figure(
     "headroom_db", "Headroom to full scale", "dB", "20 log10(full-scale peak / V_pk)", "definition"
