@@ -41,6 +41,10 @@ MAX_ORDER = 12
 """Highest filter order proposed: beyond about a dozen poles an analog filter's component
 tolerances dominate (common practice)."""
 
+MAX_STAGE_Q = 20.0
+"""Highest stage Q proposed: an active second-order stage above a Q of about 20 is too sensitive
+to component tolerances to build (common practice, from memory)."""
+
 RATES_PER_FILTER = 48
 """How many allowed rates above a filter's least possible rate are tried before giving up on it."""
 
@@ -202,7 +206,8 @@ def shaped_filter(family: str, order: int, f_high: float, flatness_db: float,
 
     chebyshev1 and elliptic get a ripple equal to the flatness and their ripple edge at f_high;
     butterworth, bessel and chebyshev2 are solved on their monotonic passband
-    (:func:`generator.dsp.filters.corner_for_droop`).
+    (:func:`generator.dsp.filters.corner_for_droop`).  None when the family cannot meet the
+    flatness or a stage's Q would exceed :data:`MAX_STAGE_Q`.
     """
     ripple = flatness_db if family in ("chebyshev1", "elliptic") else 0.1
     stop = stopband_db if family in ("chebyshev2", "elliptic") else 80.0
@@ -215,7 +220,10 @@ def shaped_filter(family: str, order: int, f_high: float, flatness_db: float,
     corner = flt.corner_for_droop(proto, f_high, flatness_db)
     if corner is None:
         return None
-    return flt.design(family, order, round_up(corner), ripple, stop)
+    filt = flt.design(family, order, round_up(corner), ripple, stop)
+    if any(s.q is not None and s.q > MAX_STAGE_Q for s in flt.stages(filt)):
+        return None
+    return filt
 
 
 def _stopband_for(need_db: float) -> float:
