@@ -10,6 +10,8 @@ Exit codes
 from __future__ import annotations
 
 import argparse
+import difflib
+import hashlib
 import os
 import sys
 import tempfile
@@ -18,9 +20,12 @@ from pathlib import Path
 
 from . import __version__
 from . import diff as spec_diff
+from . import propose as proposing
 from .analysis import SystemAnalysis, analyze
+from .dsp.filters import Stage
 from .errors import SpecError, SpecErrors
 from .load import load_spec
+from .quantities import format_quantity
 from .report import counts, to_json, to_junit, to_sarif, to_text
 from .rules import SEVERITY_RANK, Finding, all_rules, run_rules
 
@@ -64,6 +69,16 @@ def _parser() -> argparse.ArgumentParser:
     build.add_argument("specs", nargs="?", default=DEFAULT_SPECS, help="spec folder (default: specs)")
     build.add_argument("-o", "--output", default=DEFAULT_OUTPUT,
                        help="site folder (default: output); replaced as a whole on success")
+
+    prop = sub.add_parser("propose", help="the least costly compliant rate and filter per channel")
+    prop.add_argument("targets", nargs="*", metavar="[SPECS] [ID]",
+                      help="spec folder (default: specs), then channel ids (default: every channel with a "
+                           "sampling or amplitude finding a rate or filter can affect)")
+    prop.add_argument("--prefer", default="rate,order,delay",
+                      help="order of preference among rate, order and delay, comma-separated "
+                           "(default: rate,order,delay: least data rate, then least order, then least group delay)")
+    prop.add_argument("--write", action="store_true",
+                      help="edit the channel files in place (only the affected values) and print a unified diff")
 
     rules = sub.add_parser("rules", help="list the rules, or explain one")
     rules.add_argument("rule", nargs="?", help="a rule id")
@@ -167,7 +182,80 @@ def _cmd_rules(args: argparse.Namespace) -> int:
     return EXIT_OK
 
 
-COMMANDS = {"check": _cmd_check, "build": _cmd_build, "diff": _cmd_diff, "rules": _cmd_rules}
+def _stage_text(stage: Stage) -> str:
+    f0 = format_quantity(stage.f0_hz, "Hz")
+    return f"{f0} (first order)" if stage.q is None else f"{f0} (Q {stage.q:.4f})"
+
+
+def _digest(text: str) -> str:
+    return hashlib.sha256(text.encode("utf-8")).hexdigest()
+
+
+def _cmd_propose(args: argparse.Namespace) -> int:
+    targets = list(args.targets)
+    specs = DEFAULT_SPECS
+    if targets and Path(targets[0]).is_dir():
+        specs = targets.pop(0)
+    prefer = tuple(p.strip() for p in args.prefer.split(",") if p.strip())
+    spec = load_spec(Path(specs))
+    known = {c.id for c in spec.channels}
+    unknown = [t for t in targets if t not in known]
+    if unknown:
+        raise SpecError(f"no channel {', '.join(unknown)} in {specs} (and no such folder)")
+    if any(c not in proposing.CRITERIA for c in prefer) or len(set(prefer)) != len(prefer):
+        raise SpecError(f"--prefer {args.prefer}: name each of {', '.join(proposing.CRITERIA)} at most once")
+    root = Path(specs)
+    # Read every channel file now: --write refuses a file that changes between here and the write.
+    read = {c.id: (root / c.source.file).read_text(encoding="utf-8") for c in spec.channels
+            if not targets or c.id in targets}
+    proposals = proposing.propose(spec, targets or None, prefer)
+    if not proposals:
+        _write("no channel has a sampling or amplitude finding that a rate or filter can fix\n")
+        return EXIT_OK
+    out: list[str] = []
+    for p in proposals:
+        out.append(f"{p.channel_id} ({p.file}): {p.explanation}")
+        if p.design is not None:
+            out.append("  stages: " + "; ".join(_stage_text(s) for s in p.stages))
+            if p.fixes:
+                out.append(f"  clears: {', '.join(p.fixes)}")
+        for why in p.unfixable:
+            if p.design is not None or not p.explanation.endswith(why):
+                out.append(f"  left: {why}")
+    _write("\n".join(out) + "\n")
+    changes: list[tuple[Path, str, str]] = []
+    for p in proposals:
+        if p.design is None or not p.edits:
+            continue
+        before = read[p.channel_id]
+        after = proposing.edit_header(before, proposing.file_edits(p))
+        changes.append((root / p.file, before, after))
+        _write("".join(difflib.unified_diff(before.splitlines(keepends=True), after.splitlines(keepends=True),
+                                            f"a/{p.file}", f"b/{p.file}")))
+    if args.write:
+        stale = [str(path) for path, before, _ in changes
+                 if _digest(path.read_text(encoding="utf-8")) != _digest(before)]
+        if stale:
+            raise SpecError(f"{', '.join(stale)} changed since it was read; nothing was written: run propose again")
+        for path, _, after in changes:
+            path.write_text(after, encoding="utf-8")
+        result = load_spec(root)
+    else:
+        result = proposing.apply_proposals(spec, proposals)
+    ids = {p.channel_id for p in proposals}
+    left = [f for f in run_rules(analyze(result), only=proposing.TARGET_RULES)
+            if not f.waived and f.severity in ("error", "warning") and ids & set(f.channels)
+            and f.rule not in proposing.FIXED_BY_OTHER_MEANS]
+    verb = "written" if args.write else "applied"
+    _write(f"{len([p for p in proposals if p.design])} of {len(proposals)} channel(s) have a proposal; "
+           f"{'files ' + verb if args.write else 'nothing written (use --write)'}; "
+           f"{len(left)} sampling or amplitude finding(s) a rate or filter could fix remain with the proposals "
+           "applied\n")
+    return EXIT_FINDINGS if left or any(p.design is None for p in proposals) else EXIT_OK
+
+
+COMMANDS = {"check": _cmd_check, "build": _cmd_build, "diff": _cmd_diff, "rules": _cmd_rules,
+            "propose": _cmd_propose}
 
 
 def main(argv: Sequence[str] | None = None) -> int:

@@ -24,6 +24,7 @@ from markupsafe import Markup
 from .analysis import FIGURES, ChannelResult, FigureValue, SystemAnalysis
 from .charts import Chart, channel_charts
 from .model import Channel
+from .propose import Proposal, file_edits
 from .quantities import format_in_unit, format_percent, format_quantity
 from .report import counts
 from .rules import SEVERITIES, SEVERITY_RANK, Finding, Rule, worst_status
@@ -162,6 +163,31 @@ class ChannelPage:
     notes: Markup
     charts: tuple[ChartView, ...]
     up: Link
+    stages: tuple[StageRow, ...] = ()
+    proposal: ProposalView | None = None
+
+
+@dataclass(frozen=True)
+class StageRow:
+    """One stage of an analog filter's cascade, formatted."""
+
+    number: int
+    order: str  # "first" | "second"
+    f0: str
+    q: str  # "" for a first-order stage
+    notch: str
+
+
+@dataclass(frozen=True)
+class ProposalView:
+    """The design assistant's proposal beside the current design."""
+
+    current: str
+    proposed: str  # the one-line explanation (or why there is none)
+    found: bool
+    edits: tuple[tuple[str, str], ...]
+    stages: tuple[StageRow, ...]
+    left: tuple[str, ...]
 
 
 @dataclass(frozen=True)
@@ -257,6 +283,7 @@ class Context:
     paths: Mapping[str, str]  # channel id -> "channels/<file>.html"
     by_channel: dict[str, list[Finding]] = field(default_factory=dict)
     status: dict[str, str] = field(default_factory=dict)
+    proposals: Mapping[str, Proposal] = field(default_factory=dict)  # channel id -> proposal, flagged channels
 
     def __post_init__(self) -> None:
         for f in self.findings:
@@ -507,7 +534,42 @@ def channel_page(result: ChannelResult, ctx: Context, charts: Sequence[Chart] | 
         notes=notes_html(ch.notes),
         charts=tuple(ChartView(c.id, c.title, c.caption, Markup(c.to_json())) for c in built),  # <, >, & escaped
         up=Link(root + "index.html", "All channels"),
+        stages=stage_rows(result.figures.get("stages")),
+        proposal=_proposal_view(result, ctx.proposals.get(ch.id)),
     )
+
+
+def stage_rows(stages: FigureValue) -> tuple[StageRow, ...]:
+    """The ``stages`` figure (list of {f0_hz, q}) as table rows, in cascade order."""
+    if not isinstance(stages, list):
+        return ()
+    rows = []
+    for i, st in enumerate(stages, start=1):
+        q = st.get("q")
+        notch = st.get("notch_hz")
+        rows.append(StageRow(i, "first" if q is None else "second", format_quantity(float(st["f0_hz"]), "Hz"),
+                             "" if q is None else f"{float(q):.4f}",
+                             "" if notch is None else format_quantity(float(notch), "Hz")))
+    return tuple(rows)
+
+
+def _current_design(result: ChannelResult) -> str:
+    ch = result.channel
+    rate = ch.conversion.rate
+    text = format_quantity(rate, "Hz").replace("Hz", "S/s") if rate is not None else "no rate"
+    return f"{text}; {_filter(ch) or 'no filter'}"
+
+
+def _proposal_view(result: ChannelResult, proposal: Proposal | None) -> ProposalView | None:
+    if proposal is None:
+        return None
+    stages = tuple(StageRow(i, "first" if s.q is None else "second", format_quantity(s.f0_hz, "Hz"),
+                            "" if s.q is None else f"{s.q:.4f}",
+                            "" if s.notch_hz is None else format_quantity(s.notch_hz, "Hz"))
+                   for i, s in enumerate(proposal.stages, start=1))
+    return ProposalView(_current_design(result), proposal.explanation, proposal.design is not None,
+                        file_edits(proposal), stages,
+                        proposal.unfixable if proposal.design is not None else ())
 
 
 def channel_row(result: ChannelResult, ctx: Context, root: str = "") -> ChannelRow:
@@ -541,6 +603,9 @@ def totals(ctx: Context) -> Totals:
         extra.append(("Aggregate data rate", format_quantity(float(t["data_rate_bps"]), "bit/s")))
     if isinstance(t.get("recording_bytes"), int | float):
         extra.append(("One recording", format_quantity(float(t["recording_bytes"]), "B")))
+    if ctx.proposals:
+        found = sum(1 for p in ctx.proposals.values() if p.design is not None)
+        extra.append(("proposals", str(found)))
     return Totals(int(t["channels"]), by_kind, tuple((k, c[k]) for k in (*SEVERITIES, "waived")), tuple(extra))
 
 

@@ -39,6 +39,7 @@ from . import render
 from .analysis import SystemAnalysis, analyze
 from .errors import SpecError
 from .load import load_spec
+from .propose import flagged_channels, propose
 from .report import to_json
 from .rules import Finding, all_rules, run_rules
 
@@ -92,7 +93,11 @@ def plotly_bundle() -> Path:
 
 def pages(analysis: SystemAnalysis, findings: list[Finding], env: jinja2.Environment) -> Iterator[tuple[str, str]]:
     """Every page as (relative path, text), lazily, so a large system never sits in memory."""
-    ctx = render.Context(analysis, findings, render.channel_paths([r.channel.id for r in analysis.channels]))
+    # Proposals only for channels with findings a rate or filter can affect: cheap on a healthy spec.
+    flagged = flagged_channels(analysis.spec, findings)
+    proposals = {p.channel_id: p for p in propose(analysis.spec, flagged)} if flagged else {}
+    ctx = render.Context(analysis, findings, render.channel_paths([r.channel.id for r in analysis.channels]),
+                         proposals=proposals)
     rules = all_rules()
 
     def page(template: str, view: Any) -> str:

@@ -20,6 +20,7 @@ FORBIDDEN = {
     "rules": {"load", "report", "cli", "diff", *_SITE},
     "report": {"cli", "diff", *_SITE},
     "diff": {"cli", *_SITE},
+    "propose": {"report", "cli", "diff", *_SITE},
     "charts": {"load", "rules", "report", "render", "site", "cli"},
     "render": {"load", "site", "cli"},
     "site": {"cli"},

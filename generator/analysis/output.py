@@ -13,6 +13,7 @@ from ..dsp import filters, quantization
 from ..dsp import reconstruction as rec
 from ..model import Channel, Filter, System
 from .figures import FigureValue, figure
+from .sampling import STAGES, stage_list
 
 ZOH_DROOP = figure(
     "zoh_droop_db", "Hold droop at the band top (gain; 0 after ideal sinc compensation)", "dB",
@@ -66,6 +67,7 @@ class OutputResult:
     passband_error_db: float
     flatness_db: float
     output_peak_volts: float | None
+    stages: list[dict[str, float | None]] | None = None  # the reconstruction filter's cascade
 
     def figures(self) -> dict[str, FigureValue]:
         return {
@@ -80,6 +82,7 @@ class OutputResult:
             FILTER_DROOP: self.filter_droop_db,
             PASSBAND_ERROR: self.passband_error_db,
             OUTPUT_PEAK: self.output_peak_volts,
+            STAGES: self.stages,
         }
 
 
@@ -137,4 +140,14 @@ def analyze_output(channel: Channel, system: System) -> OutputResult | None:
         passband_error_db=-(droop or 0.0) + (filt_droop or 0.0),
         flatness_db=channel.signal.flatness_db,
         output_peak_volts=peak,
+        stages=_stages(channel.filter),
     )
+
+
+def _stages(filt: Filter | None) -> list[dict[str, float | None]] | None:
+    if filt is None or filt.order is None or filt.corner is None:
+        return None
+    try:
+        return stage_list(filters.design(filt.family, filt.order, filt.corner, filt.ripple_db, filt.stopband_db))
+    except ValueError:
+        return None

@@ -74,6 +74,10 @@ DIG_PASS = figure("digital_passband_hz", "Decimation filter passband edge", "Hz"
 DIG_STOP = figure("digital_stopband_hz", "Decimation filter stopband edge", "Hz", "stopband x fs", "system.toml")
 DIG_REJECTION = figure("digital_rejection_db", "Decimation filter stopband rejection", "dB", "as specified",
                        "system.toml")
+STAGES = figure("stages", "Filter stages (f0, Q)", "",
+                "poles of the prototype in pairs: f0 = |p| / 2 pi, Q = |p| / (2 |Re p|); a real pole is a "
+                "first-order stage (q null); ascending Q",
+                "Williams & Taylor; Zumbahlen, Linear Circuit Design Handbook ch. 8")
 TONES = figure("interference_folds", "Where each declared tone lands", "",
                "f_a = |f - fs round(f / fs)|, zone = floor(2 f / fs) + 1, landed = level - A(f)",
                "Oppenheim & Schafer ch. 4; ADI MT-002")
@@ -194,6 +198,7 @@ class SamplingResult:
             "family": f.family, "order": f.order, "corner_hz": f.corner_hz, "ripple_db": f.ripple_db,
             "stopband_db": f.stopband_db, "proposed": self.filter_proposed,
         }
+        out[STAGES] = None if f is None else stage_list(f)
         out[DROOP] = self.band_edge_droop_db
         out[FILTER_ALIAS] = self.filter_rejection_at_first_alias_db
         out[ALIAS_REJECTION] = self.alias_rejection_db
@@ -223,6 +228,20 @@ class SamplingResult:
         """The family needing the fewest poles (ties go to the earlier family in FAMILIES)."""
         found = [d for d in self.least_orders.values() if d is not None]
         return min(found, key=lambda d: (d.order, flt.FAMILIES.index(d.family))) if found else None
+
+
+def stage_list(filt: flt.AnalogFilter) -> list[dict[str, float | None]]:
+    """The filter's cascade as JSON objects: {f0_hz, q} per stage, ascending Q (q None: first order).
+
+    A stage with a pair of imaginary-axis zeros (chebyshev2, elliptic) also carries ``notch_hz``.
+    """
+    out: list[dict[str, float | None]] = []
+    for s in flt.stages(filt):
+        item: dict[str, float | None] = {"f0_hz": s.f0_hz, "q": s.q}
+        if s.notch_hz is not None:
+            item["notch_hz"] = s.notch_hz
+        out.append(item)
+    return out
 
 
 def _converter(channel: Channel, system: System) -> Converter | None:
