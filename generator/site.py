@@ -16,7 +16,14 @@ old folder renamed aside, the new one renamed in, and the old one deleted.  Any 
 the swap deletes the temporary folder and leaves the previous site as it was.  The builder
 refuses a folder that is not empty unless it holds the marker (a folder holding only a
 ``.gitignore`` counts as empty, and that ``.gitignore`` is carried into the new site), refuses
-the specs folder and any folder that contains it, and never deletes anything else.
+the specs folder and any folder that contains it, a repository or project root, the home folder
+and the file-system root, and never deletes anything else.  Symbolic links in an old site are
+removed as links and never followed (a linked marker or ``.gitignore`` does not count).
+
+A build killed outright cannot clean up: its temporary folder carries ``.specfold-building``
+with the builder's process id, and the next build removes such folders once that process is
+gone; an ``.old-`` folder (the old site is deleted marker last) is removed too, or put back when
+the kill fell between the two renames of the swap.
 
 Determinism: channels and findings come sorted, chart ids are fixed, JSON is written with
 fixed separators, and no page carries a time stamp, so two builds are byte-identical.
@@ -45,6 +52,9 @@ from .rules import Finding, all_rules, run_rules
 
 MARKER = ".specfold-site"
 MARKER_TEXT = "This folder is a site built by specfold; the next build replaces all of it.\n"
+BUILDING_MARKER = ".specfold-building"
+"""Written first into a temporary build folder, holding the builder's process id: a folder left by a
+killed build carries it, so a later build may remove that folder and nothing else."""
 KEPT = (".gitignore",)
 """Files carried from the old output folder into the new one (and allowed in an unmarked one)."""
 
@@ -131,14 +141,23 @@ def check_output(output: Path, specs: Path) -> None:
     """Refuse an output folder the builder must not replace (a SpecError saying why)."""
     out = output.resolve()
     spec_root = specs.resolve()
+    if out == Path(out.anchor):
+        raise SpecError(f"refusing to build into {output}: it is the root of the file system; "
+                        "choose a folder of its own, e.g. -o output")
+    if out == Path.home().resolve():
+        raise SpecError(f"refusing to build into {output}: it is your home folder; "
+                        "choose a folder of its own, e.g. -o output")
     if _inside(spec_root, out):
         raise SpecError(f"refusing to build into {output}: it is (or contains) the specs folder {specs}; "
                         "choose another output folder, e.g. -o output")
+    if (out / ".git").exists() or (out / "pyproject.toml").exists():
+        raise SpecError(f"refusing to build into {output}: it is the root of a repository or project "
+                        "(it holds .git or pyproject.toml); choose a folder inside it, e.g. -o output")
     if output.is_symlink():
         raise SpecError(f"refusing to build into {output}: it is a symbolic link; name the real folder")
     if out.exists() and not out.is_dir():
         raise SpecError(f"refusing to build into {output}: it is a file, not a folder")
-    if out.is_dir() and not (out / MARKER).is_file():
+    if out.is_dir() and not _regular_file(out / MARKER):
         foreign = sorted(p.name for p in out.iterdir() if p.name not in KEPT)
         if foreign:
             shown = ", ".join(foreign[:3]) + (" ..." if len(foreign) > 3 else "")
@@ -146,6 +165,60 @@ def check_output(output: Path, specs: Path) -> None:
                             f"and no {MARKER} marker; empty it or choose another folder")
     if not out.parent.is_dir():
         raise SpecError(f"cannot build into {output}: its parent folder {out.parent} does not exist")
+
+
+def _regular_file(path: Path) -> bool:
+    """A plain file, not a symbolic link to one: links in an old site are never followed."""
+    return path.is_file() and not path.is_symlink()
+
+
+def _remove_tree(folder: Path) -> None:
+    """Delete a folder this tool made, its marker last, so a half-deleted one is still recognised.
+
+    ``shutil.rmtree`` removes symbolic links inside as links and never descends through them.
+    """
+    for entry in sorted(folder.iterdir()):
+        if entry.name in (MARKER, BUILDING_MARKER):
+            continue
+        if entry.is_dir() and not entry.is_symlink():
+            shutil.rmtree(entry)
+        else:
+            entry.unlink()
+    shutil.rmtree(folder)
+
+
+def _alive(pid: int) -> bool:
+    try:
+        os.kill(pid, 0)
+    except ProcessLookupError:
+        return False
+    except (PermissionError, OSError):
+        return True  # someone else's process: leave its folder alone
+    return True
+
+
+def _clean_leftovers(out: Path) -> None:
+    """Remove temporary siblings of ``out`` that a killed build left behind, and only those.
+
+    A ``.NAME.building-*`` folder counts when it carries the building marker and the process named
+    in it is gone; a ``.NAME.old-*`` folder when it carries the site marker (the old site is
+    deleted marker last).  Anything else with a similar name is left as it is.
+    """
+    prefix = f".{out.name}."
+    for entry in sorted(out.parent.iterdir()):
+        if not entry.name.startswith(prefix) or entry.is_symlink() or not entry.is_dir():
+            continue
+        kind = entry.name[len(prefix):].split("-", 1)[0]
+        if kind == "building" and _regular_file(entry / BUILDING_MARKER):
+            text = (entry / BUILDING_MARKER).read_text(encoding="utf-8", errors="replace").strip()
+            if text.isdigit() and _alive(int(text)):
+                continue
+            shutil.rmtree(entry, ignore_errors=True)
+        elif kind == "old" and _regular_file(entry / MARKER):
+            if not out.exists() and not out.is_symlink():
+                os.replace(entry, out)  # killed between the two renames of a swap: the old site comes back
+                continue
+            shutil.rmtree(entry, ignore_errors=True)
 
 
 def _write(root: Path, rel: str, data: str | bytes) -> None:
@@ -185,7 +258,7 @@ def _swap(tmp: Path, out: Path) -> None:
         os.replace(tmp, out)
         return
     for name in KEPT:
-        if (out / name).is_file() and not (tmp / name).exists():
+        if _regular_file(out / name) and not (tmp / name).exists():
             shutil.copy2(out / name, tmp / name)
     aside = Path(tempfile.mkdtemp(prefix=f".{out.name}.old-", dir=out.parent))
     aside.rmdir()
@@ -195,7 +268,7 @@ def _swap(tmp: Path, out: Path) -> None:
     except BaseException:
         os.replace(aside, out)
         raise
-    shutil.rmtree(aside)
+    _remove_tree(aside)
 
 
 def write_site(analysis: SystemAnalysis, findings: list[Finding], output: Path, specs: Path,
@@ -204,10 +277,13 @@ def write_site(analysis: SystemAnalysis, findings: list[Finding], output: Path, 
     check_output(output, specs)
     env = environment()
     out = output.resolve()
+    _clean_leftovers(out)
     tmp = Path(tempfile.mkdtemp(prefix=f".{out.name}.building-", dir=out.parent))
     try:
+        (tmp / BUILDING_MARKER).write_text(f"{os.getpid()}\n", encoding="utf-8")
         count = _fill(tmp, analysis, findings, env, progress)
         _swap(tmp, out)
+        (out / BUILDING_MARKER).unlink()
     except BaseException:
         shutil.rmtree(tmp, ignore_errors=True)
         raise

@@ -1,0 +1,265 @@
+"""The output folder: what the builder refuses, links it never follows, and builds killed mid-way.
+
+A build writes into a temporary sibling ``.NAME.building-*`` (carrying ``.specfold-building``
+with its process id), swaps it in for the old site and deletes the old one marker last.  So a
+SIGKILL at any moment leaves either the old site or the new one complete at ``NAME``, and what a
+killed build leaves beside it is recognisable and removed by the next build.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import os
+import shutil
+import signal
+import subprocess
+import sys
+import time
+from pathlib import Path
+
+import pytest
+
+from generator import site
+from generator.cli import EXIT_BAD_INPUT, main
+from generator.errors import SpecError
+
+from .conftest import DEMO, MINIMAL, ROOT
+
+
+def snapshot(folder: Path) -> dict[str, str]:
+    """Relative path -> sha256 of every file under ``folder`` (links are not followed)."""
+    out: dict[str, str] = {}
+    for dirpath, _dirs, files in os.walk(folder):
+        for name in files:
+            path = Path(dirpath) / name
+            out[path.relative_to(folder).as_posix()] = hashlib.sha256(path.read_bytes()).hexdigest()
+    return out
+
+
+def leftovers(out: Path) -> list[str]:
+    return sorted(p.name for p in out.parent.iterdir() if p.name.startswith(f".{out.name}."))
+
+
+# ---------------------------------------------------------------------------------------------
+# Refusals
+# ---------------------------------------------------------------------------------------------
+
+
+@pytest.mark.parametrize("holds", [".git", "pyproject.toml"])
+def test_refuses_a_repository_root_even_with_the_marker(tmp_path: Path, holds: str,
+                                                        capsys: pytest.CaptureFixture[str]) -> None:
+    repo = tmp_path / "repo"
+    repo.mkdir()
+    (repo / holds).mkdir() if holds == ".git" else (repo / holds).write_text("[project]\n", encoding="utf-8")
+    (repo / site.MARKER).write_text(site.MARKER_TEXT, encoding="utf-8")  # even a marker does not make it ours
+    before = snapshot(repo)
+    with pytest.raises(SpecError, match="root of a repository"):
+        site.build(MINIMAL, repo)
+    assert main(["build", str(MINIMAL), "-o", str(repo)]) == EXIT_BAD_INPUT
+    assert "refusing to build into" in capsys.readouterr().err
+    assert snapshot(repo) == before and leftovers(repo) == []
+
+
+def test_refuses_this_repository_and_the_demo_specs(tmp_path: Path) -> None:
+    for target, reason in ((ROOT, "specs folder"), (DEMO, "specs folder"), (DEMO / "channels", "did not make")):
+        with pytest.raises(SpecError, match=reason):
+            site.check_output(target, DEMO)
+    with pytest.raises(SpecError, match="root of a repository"):
+        site.check_output(ROOT, tmp_path / "specs")  # specs kept elsewhere: the repository is still refused
+
+
+def test_refuses_the_home_folder(tmp_path: Path, monkeypatch: pytest.MonkeyPatch,
+                                 capsys: pytest.CaptureFixture[str]) -> None:
+    home = tmp_path / "home"
+    home.mkdir()
+    monkeypatch.setenv("HOME", str(home))  # Path.home() reads HOME on POSIX
+    with pytest.raises(SpecError, match="home folder"):
+        site.build(MINIMAL, home)  # refused although it is empty
+    assert main(["build", str(MINIMAL), "-o", str(home)]) == EXIT_BAD_INPUT
+    assert "home folder" in capsys.readouterr().err
+    assert list(home.iterdir()) == [] and leftovers(home) == []
+
+
+def test_refuses_the_file_system_root(capsys: pytest.CaptureFixture[str]) -> None:
+    with pytest.raises(SpecError, match="root of the file system"):
+        site.check_output(Path("/"), MINIMAL)
+    assert main(["build", str(MINIMAL), "-o", "/"]) == EXIT_BAD_INPUT
+    err = capsys.readouterr().err
+    assert "refusing to build into /" in err and "Traceback" not in err
+
+
+def test_refuses_an_unmarked_folder_and_a_linked_marker(tmp_path: Path) -> None:
+    out = tmp_path / "out"
+    out.mkdir()
+    (out / "notes.txt").write_text("keep", encoding="utf-8")
+    elsewhere = tmp_path / "elsewhere"
+    elsewhere.mkdir()
+    (elsewhere / site.MARKER).write_text(site.MARKER_TEXT, encoding="utf-8")
+    (out / site.MARKER).symlink_to(elsewhere / site.MARKER)  # a marker by link is no marker
+    with pytest.raises(SpecError, match="did not make"):
+        site.build(MINIMAL, out)
+    assert (out / "notes.txt").read_text(encoding="utf-8") == "keep"
+
+
+# ---------------------------------------------------------------------------------------------
+# Links inside an old site
+# ---------------------------------------------------------------------------------------------
+
+
+def test_links_in_the_old_site_are_never_followed(tmp_path: Path) -> None:
+    out = tmp_path / "site"
+    site.build(MINIMAL, out)
+    built = snapshot(out)
+    precious = tmp_path / "precious"
+    precious.mkdir()
+    (precious / "ACC-1.html").write_text("not yours", encoding="utf-8")
+    (precious / "data.bin").write_bytes(b"\x00keep")
+    secret = tmp_path / "secret.txt"
+    secret.write_text("do not publish", encoding="utf-8")
+    outside_page = tmp_path / "outside.html"
+    outside_page.write_text("outside", encoding="utf-8")
+    shutil.rmtree(out / "channels")
+    (out / "channels").symlink_to(precious, target_is_directory=True)
+    (out / "index.html").unlink()
+    (out / "index.html").symlink_to(outside_page)
+    (out / ".gitignore").symlink_to(secret)  # a kept file, but by link: not carried over
+    guarded = {p: snapshot(p) for p in (precious,)}
+    site.build(MINIMAL, out)
+    assert snapshot(precious) == guarded[precious]
+    assert secret.read_text(encoding="utf-8") == "do not publish"
+    assert outside_page.read_text(encoding="utf-8") == "outside"
+    assert not (out / "channels").is_symlink() and not (out / "index.html").is_symlink()
+    assert not (out / ".gitignore").exists()
+    assert snapshot(out) == built
+    assert leftovers(out) == []
+
+
+# ---------------------------------------------------------------------------------------------
+# Leftovers of killed builds
+# ---------------------------------------------------------------------------------------------
+
+
+def _dead_pid() -> int:
+    child = subprocess.Popen([sys.executable, "-c", "pass"])
+    child.wait()
+    return child.pid
+
+
+def test_leftovers_with_the_marker_are_cleaned_others_kept(tmp_path: Path) -> None:
+    out = tmp_path / "site"
+    site.build(MINIMAL, out)
+    dead = tmp_path / ".site.building-dead"
+    dead.mkdir()
+    (dead / site.BUILDING_MARKER).write_text(f"{_dead_pid()}\n", encoding="utf-8")
+    (dead / "index.html").write_text("half", encoding="utf-8")
+    live = tmp_path / ".site.building-live"
+    live.mkdir()
+    (live / site.BUILDING_MARKER).write_text(f"{os.getpid()}\n", encoding="utf-8")  # a build still running
+    old = tmp_path / ".site.old-x"
+    old.mkdir()
+    (old / site.MARKER).write_text(site.MARKER_TEXT, encoding="utf-8")
+    stranger = tmp_path / ".site.building-notours"
+    stranger.mkdir()
+    (stranger / "thesis.tex").write_text("mine", encoding="utf-8")
+    site.build(MINIMAL, out)
+    assert leftovers(out) == [".site.building-live", ".site.building-notours"]
+    assert (stranger / "thesis.tex").read_text(encoding="utf-8") == "mine"
+
+
+def test_an_old_site_caught_between_the_two_renames_comes_back(tmp_path: Path) -> None:
+    out = tmp_path / "site"
+    site.build(MINIMAL, out)
+    built = snapshot(out)
+    out.rename(tmp_path / ".site.old-abc")  # as if killed right after the first rename of a swap
+    site.build(MINIMAL, out)
+    assert snapshot(out) == built and leftovers(out) == []
+
+
+def _big_tree(dest: Path, channels: int = 300) -> Path:
+    """The demo with its channels copied under new ids up to ``channels`` files."""
+    shutil.copytree(DEMO, dest)
+    demo = sorted((DEMO / "channels").glob("*.md"))
+    for i in range(channels - len(demo)):
+        src = demo[i % len(demo)]
+        shutil.copyfile(src, dest / "channels" / f"{src.stem}-X{i:03d}.md")
+    return dest
+
+
+STARTUP_KILL = 0.05
+"""Seconds: a kill while Python is still importing."""
+WRITING_KILLS = (0.15, 0.5, 0.85)
+"""Fractions of the page-writing phase (timed on a first build) at which the later kills land."""
+
+
+def _run(command: list[str], out: Path, kill_at: float | None = None) -> tuple[float, float]:
+    """Run a build; with ``kill_at``, SIGKILL it that many seconds after its temporary folder appears
+    (a negative value: that many seconds after the start).  Returns (temporary folder seen, end),
+    times in seconds from the start, -1 for a folder never seen."""
+    start = time.monotonic()
+    child = subprocess.Popen(command, cwd=ROOT, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE)
+    appeared = -1.0
+    before = set(leftovers(out))  # a killed build's folder is not this one's
+    while child.poll() is None:
+        now = time.monotonic() - start
+        if appeared < 0 and any(".building-" in name for name in set(leftovers(out)) - before):
+            appeared = now
+        if kill_at is not None and ((kill_at < 0 and now >= -kill_at) or (0 <= appeared <= now - kill_at)):
+            child.send_signal(signal.SIGKILL)
+            child.wait()
+            return appeared, now
+        time.sleep(0.005)
+    assert child.stderr is not None
+    assert child.returncode == 0, child.stderr.read().decode()
+    return appeared, time.monotonic() - start  # also when a kill came too late: the build had finished
+
+
+def test_a_build_killed_at_any_moment_leaves_the_previous_site(tmp_path: Path) -> None:
+    specs = _big_tree(tmp_path / "specs")
+    out = tmp_path / "site"
+    command = [sys.executable, "-m", "generator", "build", str(specs), "-o", str(out)]
+    appeared, total = _run(command, out)  # the first site, timed
+    previous = snapshot(out)
+    assert len(previous) > 300
+    assert 0 < appeared < total
+    writing = total - appeared
+    mid_build = 0
+    for kill_at in (-STARTUP_KILL, *(f * writing for f in WRITING_KILLS)):
+        _run(command, out, kill_at)
+        left = leftovers(out)
+        print(f"kill at {kill_at:+.2f} s (writing takes {writing:.2f} s): left {left}")
+        mid_build += any(".building-" in name for name in left)  # killed while pages were being written
+        assert snapshot(out) == previous, f"killed at {kill_at:.2f} s"
+    assert mid_build >= 2, "too few kills landed while a build was writing; the test proved little"
+    _run(command, out)
+    assert snapshot(out) == previous
+    assert leftovers(out) == []  # the next build cleared what the killed ones left
+
+
+# ---------------------------------------------------------------------------------------------
+# File names from ids
+# ---------------------------------------------------------------------------------------------
+
+
+def test_ids_made_of_dots_stay_inside_the_site(tmp_path: Path) -> None:
+    # the loader admits '.', '_' and '-' in ids, so '..' and '.' are ids; their pages stay in channels/
+    specs = tmp_path / "specs"
+    shutil.copytree(MINIMAL, specs)
+    for stem in ("..", ".", "...", ".hidden"):
+        shutil.copyfile(specs / "channels" / "ACC-1.md", specs / "channels" / f"{stem}.md")
+    out = tmp_path / "deep" / "site"
+    out.parent.mkdir()
+    site.build(specs, out)
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["deep", "specs"]
+    assert sorted(p.name for p in out.parent.iterdir()) == ["site"]
+    pages = sorted(p.name for p in (out / "channels").iterdir())
+    assert len(pages) == len(list((specs / "channels").glob("*.md")))
+    assert all(not name.startswith(".") and name.endswith(".html") for name in pages), pages
+
+
+@pytest.mark.parametrize("rel", ["../escape.html", "/tmp/escape.html", "channels/../../escape.html", "."])
+def test_the_writer_refuses_a_path_out_of_the_site(tmp_path: Path, rel: str) -> None:
+    root = tmp_path / "site"
+    root.mkdir()
+    with pytest.raises(SpecError, match="outside the site folder"):
+        site._write(root, rel, "x")
+    assert not (tmp_path / "escape.html").exists()
