@@ -487,7 +487,8 @@ def _row_doc(row: list[str], cols: list[Column], file: str, line: int,
         if field.part is not None:
             halves.setdefault(key.path, {})[field.part] = (col, value)
             continue
-        _check_cell(key, value, unit, col, bad)
+        if not _check_cell(key, value, unit, col, bad):
+            continue
         _put(doc, key, field.index, value)
         where[_located(key, field.index)] = col
     for kpath, got in halves.items():
@@ -573,17 +574,20 @@ def plan_import(specs: Path | str, table: Path | str, mapping: Mapping[str, str]
         rel = taken.relative_to(root).as_posix() if taken else f"{CHANNEL_DIR}/{channel_id}.md"
         texts[rel] = text
         meta[rel] = (channel_id, line, lines, where)
-    if not problems:
-        for err in check_texts(root, texts):
-            if err.file not in meta:  # system.toml itself: report as the loader said it
-                problems.append(err)
-                continue
-            channel_id, line, lines, where = meta[err.file]
-            col = where.get(lines.get(err.line or 0, ""))
-            if col is not None:
-                problems.append(SpecError(f'column "{col.header}": {err.message}', file, line, col.index + 1))
-            else:
-                problems.append(SpecError(f"channel {channel_id}: {err.message}", file, line))
+    # every row goes through the loader, even when other rows (or other cells of the row) are bad,
+    # so one run reports every problem; a bad cell was left out, and what follows from that is not
+    # reported twice
+    bad_rows = {p.line for p in problems}
+    for err in check_texts(root, texts):
+        if err.file not in meta:  # system.toml itself: report as the loader said it
+            problems.append(err)
+            continue
+        channel_id, line, lines, where = meta[err.file]
+        col = where.get(lines.get(err.line or 0, ""))
+        if col is not None:
+            problems.append(SpecError(f'column "{col.header}": {err.message}', file, line, col.index + 1))
+        elif line not in bad_rows:
+            problems.append(SpecError(f"channel {channel_id}: {err.message}", file, line))
     if problems:
         raise SpecErrors(problems)
     planned = []
