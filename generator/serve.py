@@ -114,6 +114,8 @@ class Preview:
 
     def start(self) -> int:
         """First build, then serve and watch in daemon threads; returns the port actually bound."""
+        # taken before the first build, so an edit saved while it runs is not missed
+        seen = snapshot(self.specs)
         self.rebuild()
         handler = partial(_Handler, preview=self)
         self._server = ThreadingHTTPServer((HOST, self.port), handler)
@@ -121,14 +123,13 @@ class Preview:
         self.port = int(self._server.server_address[1])
         serving = threading.Thread(target=self._server.serve_forever, kwargs={"poll_interval": 0.2},
                                    name="specfold-serve", daemon=True)
-        watching = threading.Thread(target=self._watch, name="specfold-watch", daemon=True)
+        watching = threading.Thread(target=self._watch, args=(seen,), name="specfold-watch", daemon=True)
         self._threads = [serving, watching]
         for t in self._threads:
             t.start()
         return self.port
 
-    def _watch(self) -> None:
-        seen = snapshot(self.specs)
+    def _watch(self, seen: tuple[tuple[str, int, int], ...]) -> None:
         while not self._stop.wait(self.interval):
             now = snapshot(self.specs)
             if now != seen:
