@@ -82,6 +82,29 @@ def _parser() -> argparse.ArgumentParser:
 
     rules = sub.add_parser("rules", help="list the rules, or explain one")
     rules.add_argument("rule", nargs="?", help="a rule id")
+
+    new = sub.add_parser("new", help="write a channel file with every key, commented, ready to edit")
+    new.add_argument("id", help="channel id (the file name): letters, digits, '.', '_' and '-'")
+    new.add_argument("--kind", choices=("input", "output", "image"), default="input", help="default: input")
+    new.add_argument("--converter", help="converter id from system.toml (default: the first of the right type)")
+    new.add_argument("--specs", default=DEFAULT_SPECS, help="spec folder (default: specs)")
+
+    imp = sub.add_parser("import", help="channel files from a CSV table (a dry run unless --write)")
+    imp.add_argument("table", help="CSV file: one row per channel, headers naming keys")
+    imp.add_argument("--specs", default=DEFAULT_SPECS, help="spec folder (default: specs)")
+    imp.add_argument("--mapping", help='TOML file of "header" = "key path" pairs that override the header spellings')
+    imp.add_argument("--write", action="store_true", help="write the files (default: show what would be written)")
+    imp.add_argument("--force", action="store_true", help="replace channel files that exist and differ")
+
+    exp = sub.add_parser("export", help="the channel table with requirement values and key figures")
+    exp.add_argument("specs", nargs="?", default=DEFAULT_SPECS, help="spec folder (default: specs)")
+    exp.add_argument("--format", choices=("csv", "json"), default="csv", help="default: csv")
+
+    serve = sub.add_parser("serve", help="build, serve on 127.0.0.1 and rebuild on every saved change")
+    serve.add_argument("specs", nargs="?", default=DEFAULT_SPECS, help="spec folder (default: specs)")
+    serve.add_argument("--port", type=int, default=8000, help="port on 127.0.0.1 (default 8000; 0: any free port)")
+    serve.add_argument("-o", "--output", default=None,
+                       help="site folder (default: a temporary folder removed on exit)")
     return p
 
 
@@ -254,8 +277,91 @@ def _cmd_propose(args: argparse.Namespace) -> int:
     return EXIT_FINDINGS if left or any(p.design is None for p in proposals) else EXIT_OK
 
 
-COMMANDS = {"check": _cmd_check, "build": _cmd_build, "diff": _cmd_diff, "rules": _cmd_rules,
-            "propose": _cmd_propose}
+def _cmd_new(args: argparse.Namespace) -> int:
+    from .scaffold import new_channel
+
+    path, text = new_channel(args.specs, args.id, args.kind, args.converter)
+    if path.exists():  # created between the check and now
+        raise SpecError(f"{path} already exists; specfold new never overwrites a channel file")
+    path.parent.mkdir(parents=True, exist_ok=True)
+    with path.open("x", encoding="utf-8", newline="\n") as fh:
+        fh.write(text)
+    print(f"wrote {path}: every key for an {args.kind} channel, commented; edit it, then 'specfold check'"
+          if args.kind[0] in "aeiou" else f"wrote {path}: every key for a {args.kind} channel, commented; "
+          "edit it, then 'specfold check'")
+    return EXIT_OK
+
+
+def _cmd_import(args: argparse.Namespace) -> int:
+    from .table import plan_import, read_mapping, write_planned
+
+    mapping = read_mapping(Path(args.mapping)) if args.mapping else None
+    planned = plan_import(args.specs, args.table, mapping)
+    if not args.write:
+        for p in planned:
+            note = {"new": "new", "replace": "replace, needs --force" if not args.force else "replace",
+                    "unchanged": "unchanged"}[p.state]
+            _write(f"=== {Path(args.specs, p.rel).as_posix()} ({note}; row {p.row})\n{p.text}\n")
+        n = sum(p.state != "unchanged" for p in planned)
+        _write(f"dry run: {n} of {len(planned)} file(s) would be written; add --write to write them\n")
+        return EXIT_OK
+    written = write_planned(args.specs, planned, args.force)
+    _write(f"wrote {len(written)} channel file(s) in {Path(args.specs, 'channels').as_posix()} "
+           f"({len(planned) - len(written)} unchanged)\n")
+    return EXIT_OK
+
+
+def _cmd_export(args: argparse.Namespace) -> int:
+    from .table import export_table, to_csv, to_json_table
+
+    analysis = _load(args.specs)
+    columns, rows = export_table(analysis, run_rules(analysis))
+    if args.format == "json":
+        _write(to_json_table(columns, rows), lambda: to_json_table(columns, rows, ascii_only=True))
+    else:
+        _write(to_csv(columns, rows))
+    return EXIT_OK
+
+
+def _cmd_serve(args: argparse.Namespace) -> int:
+    import shutil
+    import threading
+
+    from .serve import Preview
+
+    if not 0 <= args.port <= 65535:
+        raise SpecError(f"--port {args.port} is not a port number (0 to 65535; 0 picks a free one)")
+    scratch = None
+    output = args.output
+    if output is None:
+        scratch = tempfile.mkdtemp(prefix="specfold-serve-")
+        output = str(Path(scratch) / "site")
+
+    def say(message: str) -> None:
+        print(f"specfold serve: {message}", file=sys.stderr, flush=True)
+
+    preview = Preview(Path(args.specs), Path(output), args.port, on_event=say)
+    try:
+        try:
+            port = preview.start()
+        except OSError as exc:
+            raise SpecError(f"cannot serve on 127.0.0.1:{args.port}: {exc.strerror or exc}; "
+                            "try another --port, or 0 for any free one") from None
+        print(f"serving {args.specs} at http://127.0.0.1:{port}/ (port {port}); "
+              "pages reload when a spec is saved; Ctrl-C stops", flush=True)
+        try:
+            threading.Event().wait()
+        except KeyboardInterrupt:
+            say("stopping")
+    finally:
+        preview.stop()
+        if scratch is not None:
+            shutil.rmtree(scratch, ignore_errors=True)
+    return EXIT_OK
+
+
+COMMANDS = {"check": _cmd_check, "build": _cmd_build, "diff": _cmd_diff, "rules": _cmd_rules, "new": _cmd_new,
+            "import": _cmd_import, "export": _cmd_export, "serve": _cmd_serve, "propose": _cmd_propose}
 
 
 def main(argv: Sequence[str] | None = None) -> int:

@@ -14,6 +14,7 @@ from pathlib import Path
 from . import schema
 from .analysis import FIGURES
 from .rules import all_rules
+from .table import spelling_table
 
 
 def figure_table() -> str:
@@ -36,6 +37,7 @@ def sections() -> dict[str, str]:
         "system-keys": schema.reference_table(schema.SYSTEM_KEYS),
         "figures": figure_table(),
         "rules": rule_table(),
+        "csv-headers": spelling_table(),
     }
 
 

@@ -754,6 +754,15 @@ def channel_files(root: Path) -> list[Path]:
     return sorted(p for p in folder.rglob("*.md") if p.is_file() and not p.is_symlink())
 
 
+def load_system(root: Path | str) -> System:
+    """Load only ``root/system.toml``; raise :class:`SpecErrors` listing its problems."""
+    problems: list[SpecError] = []
+    system = _load_system(Path(root), problems)
+    if problems or system is None:
+        raise SpecErrors(problems)
+    return system
+
+
 def load_spec(root: Path | str, on_file: Callable[[], None] | None = None) -> Spec:
     """Load a whole spec tree; raise :class:`SpecErrors` listing every problem found."""
     root = Path(root)

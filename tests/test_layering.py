@@ -24,6 +24,9 @@ FORBIDDEN = {
     "charts": {"load", "rules", "report", "render", "site", "cli"},
     "render": {"load", "site", "cli"},
     "site": {"cli"},
+    "scaffold": {"dsp", "analysis", "rules", "report", "cli", "diff", "table", "serve", *_SITE},
+    "table": {"cli", "diff", "serve", *_SITE},
+    "serve": {"cli", "table", "scaffold"},
 }
 
 

@@ -1,0 +1,197 @@
+"""Live preview: build the site, serve it on the loopback address, rebuild when a spec changes.
+
+The watcher scans the spec folder's file times and sizes every ``interval`` seconds and rebuilds
+the whole site (:func:`generator.site.build`, a fraction of a second for a few hundred channels)
+when anything changed.  Served HTML pages get a small script, added as they are sent and never
+written into the built files, that asks ``/__specfold/version`` twice a second and reloads the
+page when the number changes.  While the specs have errors every page is an error page listing
+the messages (HTML-escaped); the server keeps running and recovers on the next good edit.
+
+Only 127.0.0.1 is ever bound: the preview is for the engineer at this machine.
+"""
+
+from __future__ import annotations
+
+import html
+import threading
+import time
+from collections.abc import Callable
+from dataclasses import dataclass, field
+from functools import partial
+from http import HTTPStatus
+from http.server import SimpleHTTPRequestHandler, ThreadingHTTPServer
+from pathlib import Path
+from typing import Any
+
+from .errors import SpecError, SpecErrors
+from .site import build
+
+HOST = "127.0.0.1"
+VERSION_PATH = "/__specfold/version"
+RELOAD_SCRIPT = (
+    "<script>(function(){var v=null;function poll(){fetch('" + VERSION_PATH + "',{cache:'no-store'})"
+    ".then(function(r){return r.text();}).then(function(t){if(v===null){v=t;}else if(t!==v){location.reload();}})"
+    ".catch(function(){}).then(function(){setTimeout(poll,500);});}poll();})();</script>"
+)
+
+Event = Callable[[str], None]
+"""``on_event(message)``: what the preview reports (built, rebuilt, errors); the CLI prints it."""
+
+
+def snapshot(specs: Path) -> tuple[tuple[str, int, int], ...]:
+    """Name, modification time and size of every file under ``specs``, sorted: what the watcher compares."""
+    out = []
+    for path in sorted(specs.rglob("*")):
+        try:
+            if path.is_file():
+                st = path.stat()
+                out.append((path.relative_to(specs).as_posix(), st.st_mtime_ns, st.st_size))
+        except OSError:
+            continue  # a file removed while scanning shows up on the next scan
+    return tuple(out)
+
+
+def error_page(errors: list[SpecError]) -> str:
+    """The page shown while the specs do not load: every message, escaped."""
+    items = "\n".join(f"<li><pre>{html.escape(e.format())}</pre></li>" for e in errors)
+    n = len(errors)
+    return (
+        "<!DOCTYPE html>\n<html lang=\"en\"><head><meta charset=\"utf-8\"><title>specfold: problems in the specs"
+        "</title><style>body{font-family:sans-serif;margin:2em;max-width:60em}pre{white-space:pre-wrap;"
+        "background:#fff3f3;border-left:4px solid #b00;padding:.5em}</style></head><body>"
+        f"<h1>{n} problem{'s' if n != 1 else ''} in the specs</h1>"
+        "<p>The site is rebuilt as soon as the files are saved without errors.</p>"
+        f"<ol>\n{items}\n</ol></body></html>\n"
+    )
+
+
+def inject(page: bytes) -> bytes:
+    """The page with the reload script before ``</body>`` (or at the end)."""
+    script = RELOAD_SCRIPT.encode()
+    at = page.rfind(b"</body>")
+    return page[:at] + script + page[at:] if at >= 0 else page + script
+
+
+@dataclass
+class Preview:
+    """A running preview: build state, the HTTP server and the watcher thread."""
+
+    specs: Path
+    output: Path
+    port: int = 0
+    interval: float = 0.5
+    on_event: Event | None = None
+    version: int = 0
+    errors: list[SpecError] = field(default_factory=list)
+    last_build_s: float = 0.0
+    _server: ThreadingHTTPServer | None = None
+    _threads: list[threading.Thread] = field(default_factory=list)
+    _stop: threading.Event = field(default_factory=threading.Event)
+    _lock: threading.Lock = field(default_factory=threading.Lock)
+
+    def _say(self, message: str) -> None:
+        if self.on_event is not None:
+            self.on_event(message)
+
+    def rebuild(self) -> None:
+        """Build once; on bad specs keep the messages for the error page instead of raising."""
+        started = time.perf_counter()
+        try:
+            summary = build(self.specs, self.output)
+            errors: list[SpecError] = []
+            note = f"built {summary.channels} channels"
+        except SpecErrors as errs:
+            errors = list(errs.errors)
+            note = f"{len(errors)} problem(s) in the specs; showing them in the browser"
+        except SpecError as err:
+            errors = [err]
+            note = f"cannot build: {err.format()}"
+        with self._lock:
+            self.errors = errors
+            self.version += 1
+            self.last_build_s = time.perf_counter() - started
+        self._say(f"{note} in {self.last_build_s:.2f} s")
+
+    def start(self) -> int:
+        """First build, then serve and watch in daemon threads; returns the port actually bound."""
+        # taken before the first build, so an edit saved while it runs is not missed
+        seen = snapshot(self.specs)
+        self.rebuild()
+        handler = partial(_Handler, preview=self)
+        self._server = ThreadingHTTPServer((HOST, self.port), handler)
+        self._server.daemon_threads = True
+        self.port = int(self._server.server_address[1])
+        serving = threading.Thread(target=self._server.serve_forever, kwargs={"poll_interval": 0.2},
+                                   name="specfold-serve", daemon=True)
+        watching = threading.Thread(target=self._watch, args=(seen,), name="specfold-watch", daemon=True)
+        self._threads = [serving, watching]
+        for t in self._threads:
+            t.start()
+        return self.port
+
+    def _watch(self, seen: tuple[tuple[str, int, int], ...]) -> None:
+        while not self._stop.wait(self.interval):
+            now = snapshot(self.specs)
+            if now != seen:
+                seen = now
+                self.rebuild()
+
+    def stop(self) -> None:
+        """Stop watching and serving; returns when both threads have ended."""
+        self._stop.set()
+        if self._server is not None:
+            self._server.shutdown()
+            self._server.server_close()
+        for t in self._threads:
+            t.join(timeout=5)
+
+    @property
+    def url(self) -> str:
+        return f"http://{HOST}:{self.port}/"
+
+
+class _Handler(SimpleHTTPRequestHandler):
+    """Static files from the output folder, the version endpoint, and the reload script in HTML."""
+
+    def __init__(self, *args: Any, preview: Preview, **kwargs: Any) -> None:
+        self.preview = preview
+        super().__init__(*args, directory=str(preview.output), **kwargs)
+
+    def log_message(self, format: str, *args: Any) -> None:
+        pass  # a request log would bury the build messages
+
+    def _send(self, body: bytes, content_type: str, status: HTTPStatus = HTTPStatus.OK) -> None:
+        self.send_response(status)
+        self.send_header("Content-Type", content_type)
+        self.send_header("Content-Length", str(len(body)))
+        self.send_header("Cache-Control", "no-store")
+        self.end_headers()
+        if self.command != "HEAD":
+            self.wfile.write(body)
+
+    def do_HEAD(self) -> None:
+        self.do_GET()
+
+    def do_GET(self) -> None:
+        path = self.path.split("?", 1)[0].split("#", 1)[0]
+        with self.preview._lock:
+            version, errors = self.preview.version, list(self.preview.errors)
+        if path == VERSION_PATH:
+            self._send(str(version).encode(), "text/plain; charset=utf-8")
+            return
+        wants_page = path.endswith((".html", "/"))
+        if errors and wants_page:
+            self._send(inject(error_page(errors).encode("utf-8")), "text/html; charset=utf-8")
+            return
+        if wants_page:
+            target = Path(self.translate_path(path))
+            if target.is_dir():
+                target = target / "index.html"
+            try:
+                page = target.read_bytes()
+            except OSError:
+                self.send_error(HTTPStatus.NOT_FOUND, "no such page")
+                return
+            self._send(inject(page), "text/html; charset=utf-8")
+            return
+        super().do_GET()
