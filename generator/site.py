@@ -324,7 +324,6 @@ def _fill(tmp: Path, analysis: SystemAnalysis, findings: list[Finding], env: jin
     old_bundle = reuse.old_site / PLOTLY_ASSET if reuse is not None and reuse.previous is not None else None
     if old_bundle is None or not _carry(old_bundle, tmp / PLOTLY_ASSET):
         shutil.copyfile(plotly_bundle(), tmp / PLOTLY_ASSET)
-    _write(tmp, "data/spec.json", to_json(analysis, findings))
     ctx = _context(analysis, findings)
     total = page_count(analysis)
     done = 0
@@ -355,7 +354,8 @@ def _fill(tmp: Path, analysis: SystemAnalysis, findings: list[Finding], env: jin
         try:
             with multiprocessing.get_context("fork").Pool(workers) as pool:
                 pending = pool.map_async(_render_chunk, chunks, chunksize=1)
-                for rel, text in shared_pages(ctx, env):  # the parent works meanwhile
+                _write(tmp, "data/spec.json", to_json(analysis, findings))  # the parent works meanwhile
+                for rel, text in shared_pages(ctx, env):
                     _write(tmp, rel, text)
                     tick(1, rel)
                 for n in pending.get():
@@ -363,6 +363,7 @@ def _fill(tmp: Path, analysis: SystemAnalysis, findings: list[Finding], env: jin
         finally:
             _JOB = None
     else:
+        _write(tmp, "data/spec.json", to_json(analysis, findings))
         for rel, text in shared_pages(ctx, env):
             _write(tmp, rel, text)
             tick(1, rel)

@@ -22,12 +22,13 @@ from pathlib import Path
 DEMO = Path(__file__).resolve().parents[2] / "specs"
 BAY = 17
 
-_WORDS = (
+_WORD_TEXT = (
     "housing bearing shaft mount cable screen connector gland junction sensor amplifier "
     "calibration offset drift temperature humidity vibration fatigue inspection torque "
     "clamp bracket pad stud thread epoxy grounding isolation reference phase gain range "
     "record campaign trial sweep step ramp dwell baseline commissioning acceptance"
-).split()
+)
+_WORDS = _WORD_TEXT.split()
 
 
 def _sentence(rng: random.Random, n: int) -> str:
@@ -58,8 +59,8 @@ def _system(bays: int) -> str:
     for b in range(bays):
         for block in blocks:
             block = re.sub(r"^\[(converters|links|stores|groups)\.([a-z0-9-]+)\]",
-                           lambda m: f"[{m.group(1)}.{m.group(2)}-{b}]", block)
-            block = re.sub(r'^(link|store) = "([a-z0-9-]+)"', lambda m: f'{m.group(1)} = "{m.group(2)}-{b}"',
+                           lambda m, b=b: f"[{m.group(1)}.{m.group(2)}-{b}]", block)
+            block = re.sub(r'^(link|store) = "([a-z0-9-]+)"', lambda m, b=b: f'{m.group(1)} = "{m.group(2)}-{b}"',
                            block, flags=re.M)
             out.append(block.rstrip("\n") + "\n\n")
     return "".join(out)
