@@ -69,6 +69,8 @@ def _parser() -> argparse.ArgumentParser:
     build.add_argument("specs", nargs="?", default=DEFAULT_SPECS, help="spec folder (default: specs)")
     build.add_argument("-o", "--output", default=DEFAULT_OUTPUT,
                        help="site folder (default: output); replaced as a whole on success")
+    build.add_argument("--fresh", action="store_true",
+                       help="render every page again instead of reusing unchanged ones from the current site")
 
     prop = sub.add_parser("propose", help="the least costly compliant rate and filter per channel")
     prop.add_argument("targets", nargs="*", metavar="[SPECS] [ID]",
@@ -180,7 +182,8 @@ def _progress_bar(done: int, total: int, what: str) -> None:
 def _cmd_build(args: argparse.Namespace) -> int:
     from .site import build  # the site stack (jinja2, markdown, nh3) loads only for this command
 
-    summary = build(args.specs, args.output, progress=_progress_bar if sys.stderr.isatty() else None)
+    summary = build(args.specs, args.output, progress=_progress_bar if sys.stderr.isatty() else None,
+                    incremental=not args.fresh)
     c = counts(summary.findings)
     index = summary.output / "index.html"
     print(

@@ -10,6 +10,7 @@ from __future__ import annotations
 
 from collections.abc import Mapping
 from dataclasses import dataclass, field
+from functools import cached_property
 from types import MappingProxyType
 from typing import Any
 
@@ -242,8 +243,9 @@ class Spec:
     system: System
     channels: tuple[Channel, ...]
 
+    @cached_property
+    def _by_id(self) -> Mapping[str, Channel]:
+        return {ch.id: ch for ch in self.channels}
+
     def channel(self, channel_id: str) -> Channel:
-        for ch in self.channels:
-            if ch.id == channel_id:
-                return ch
-        raise KeyError(channel_id)
+        return self._by_id[channel_id]  # KeyError for an unknown id

@@ -23,7 +23,7 @@ from typing import Any
 
 from . import __version__
 from .analysis import SystemAnalysis
-from .rules import SEVERITY_RANK, Finding, all_rules, channel_status
+from .rules import SEVERITY_RANK, Finding, all_rules, worst_status
 
 JSON_FORMAT = 1
 
@@ -61,9 +61,18 @@ def _budget_of(budgets: Iterable[Any], item_id: str) -> dict[str, Any]:
     return {}
 
 
+def _by_channel(findings: Iterable[Finding]) -> dict[str, list[Finding]]:
+    out: dict[str, list[Finding]] = {}
+    for f in findings:
+        for cid in f.channels:
+            out.setdefault(cid, []).append(f)
+    return out
+
+
 def spec_document(analysis: SystemAnalysis, findings: list[Finding]) -> dict[str, Any]:
     """The JSON contract shared by ``check --format json`` and the site's data/spec.json."""
     system = analysis.spec.system
+    mine = _by_channel(findings)
     doc: dict[str, Any] = _clean({
         "format": JSON_FORMAT,
         "system": {
@@ -89,7 +98,7 @@ def spec_document(analysis: SystemAnalysis, findings: list[Finding]) -> dict[str
                 "id": r.channel.id,
                 "kind": r.channel.kind,
                 "file": r.channel.source.file,
-                "status": channel_status(findings, r.channel.id),
+                "status": worst_status(mine.get(r.channel.id, ())),
                 "figures": r.figures,
             }
             for r in analysis.channels

@@ -27,11 +27,27 @@ the kill fell between the two renames of the swap.
 
 Determinism: channels and findings come sorted, chart ids are fixed, JSON is written with
 fixed separators, and no page carries a time stamp, so two builds are byte-identical.
+
+Incremental builds
+------------------
+The site carries ``.specfold-cache/manifest.json``: a key for the tool (version, generator
+source, templates, the plotly bundle), a key for the inputs (system.toml and every channel
+file), and a key per channel page (tool, system.toml, the channel file, its page path, its
+findings and the pages they link to).  A build whose tool and inputs keys match the current
+site's manifest changes nothing and returns at once.  Otherwise everything is loaded, analysed
+and checked again (budgets and system rules span channels), shared pages are rendered again,
+and a channel page whose key is unchanged is hard-linked (or copied) from the current site
+instead of being rendered.  The manifest moves with the site in the same swap, so it always
+describes the folder it sits in.  Many pages to render are split over a fork-based process
+pool in coarse chunks while the parent renders the shared pages.
 """
 
 from __future__ import annotations
 
+import hashlib
 import importlib.resources
+import json
+import multiprocessing
 import os
 import shutil
 import tempfile
@@ -42,10 +58,10 @@ from typing import Any
 
 import jinja2
 
-from . import render
-from .analysis import SystemAnalysis, analyze
+from . import __version__, render
+from .analysis import ChannelResult, SystemAnalysis, analyze
 from .errors import SpecError
-from .load import load_spec
+from .load import SYSTEM_FILE, channel_files, load_spec
 from .propose import flagged_channels, propose
 from .report import to_json
 from .rules import Finding, all_rules, run_rules
@@ -61,6 +77,11 @@ KEPT = (".gitignore",)
 TEMPLATES = Path(__file__).resolve().parent.parent / "site_templates"
 STATIC = ("site.css", "site.js")
 PLOTLY_ASSET = "assets/plotly.min.js"
+MANIFEST = ".specfold-cache/manifest.json"
+MANIFEST_FORMAT = 1
+POOL_MIN_PAGES = 300
+"""Fewer channel pages than this to render are rendered in-process (a pool would not pay off)."""
+POOL_CHUNK = 100
 
 Progress = Callable[[int, int, str], None]
 """``progress(done, total, what)``, called as pages are written; the CLI draws it."""
@@ -101,13 +122,29 @@ def plotly_bundle() -> Path:
 # ---------------------------------------------------------------------------------------------
 
 
-def pages(analysis: SystemAnalysis, findings: list[Finding], env: jinja2.Environment) -> Iterator[tuple[str, str]]:
-    """Every page as (relative path, text), lazily, so a large system never sits in memory."""
+def _context(analysis: SystemAnalysis, findings: list[Finding]) -> render.Context:
     # Proposals only for channels with findings a rate or filter can affect: cheap on a healthy spec.
     flagged = flagged_channels(analysis.spec, findings)
     proposals = {p.channel_id: p for p in propose(analysis.spec, flagged)} if flagged else {}
-    ctx = render.Context(analysis, findings, render.channel_paths([r.channel.id for r in analysis.channels]),
-                         proposals=proposals)
+    return render.Context(analysis, findings, render.channel_paths([r.channel.id for r in analysis.channels]),
+                          proposals=proposals)
+
+
+def pages(analysis: SystemAnalysis, findings: list[Finding], env: jinja2.Environment) -> Iterator[tuple[str, str]]:
+    """Every page as (relative path, text), lazily, so a large system never sits in memory."""
+    ctx = _context(analysis, findings)
+    yield from shared_pages(ctx, env)
+    for result in analysis.channels:
+        yield ctx.paths[result.channel.id], channel_html(result, ctx, env)
+
+
+def channel_html(result: ChannelResult, ctx: render.Context, env: jinja2.Environment) -> str:
+    view = render.channel_page(result, ctx)
+    return env.get_template("channel.html").render(page=view, frame=view.frame)
+
+
+def shared_pages(ctx: render.Context, env: jinja2.Environment) -> Iterator[tuple[str, str]]:
+    """The five pages that span all channels: rendered again on every build that changes anything."""
     rules = all_rules()
 
     def page(template: str, view: Any) -> str:
@@ -118,10 +155,6 @@ def pages(analysis: SystemAnalysis, findings: list[Finding], env: jinja2.Environ
     yield "findings.html", page("findings.html", render.findings_page(ctx, rules))
     yield "rules.html", page("rules.html", render.rules_page(ctx, rules))
     yield "book.html", page("book.html", render.book_page(ctx))
-    channel_template = env.get_template("channel.html")
-    for result in analysis.channels:
-        view = render.channel_page(result, ctx)
-        yield ctx.paths[result.channel.id], channel_template.render(page=view, frame=view.frame)
 
 
 def page_count(analysis: SystemAnalysis) -> int:
@@ -232,24 +265,193 @@ def _write(root: Path, rel: str, data: str | bytes) -> None:
         target.write_bytes(data)
 
 
+# ---------------------------------------------------------------------------------------------
+# Keys and the manifest
+# ---------------------------------------------------------------------------------------------
+
+
+def _digest(*parts: str | bytes) -> str:
+    h = hashlib.sha256()
+    for part in parts:
+        data = part.encode("utf-8") if isinstance(part, str) else part
+        h.update(len(data).to_bytes(8, "little"))
+        h.update(data)
+    return h.hexdigest()
+
+
+def tool_key(templates: Path = TEMPLATES) -> str:
+    """What the tool contributes to every page: version, generator source, templates, plotly bundle."""
+    parts: list[str | bytes] = [__version__]
+    package = Path(__file__).resolve().parent
+    for folder in (package, templates):
+        for path in sorted(folder.rglob("*")):
+            if path.is_file() and path.suffix in (".py", ".html", ".css", ".js"):
+                parts += [path.relative_to(folder).as_posix(), path.read_bytes()]
+    bundle = plotly_bundle().stat()
+    parts.append(f"plotly {bundle.st_size} {bundle.st_mtime_ns}")
+    return _digest(*parts)
+
+
+@dataclass(frozen=True)
+class Inputs:
+    """Keys of the spec tree: the whole of it, system.toml, and each channel file by its path."""
+
+    tree: str
+    system: str
+    files: dict[str, str]
+
+
+def input_keys(specs: Path) -> Inputs | None:
+    """Hash every file the build reads; None when one cannot be read (no shortcut is taken then)."""
+    try:
+        system = _digest((specs / SYSTEM_FILE).read_bytes())
+        files = {p.relative_to(specs).as_posix(): _digest(p.read_bytes()) for p in channel_files(specs)}
+    except OSError:
+        return None
+    return Inputs(_digest(system, *(f"{k} {v}" for k, v in files.items())), system, files)
+
+
+def read_manifest(output: Path) -> dict[str, Any] | None:
+    """The manifest of the site in ``output``, or None when there is no usable one."""
+    path = output / MANIFEST
+    if not (output / MARKER).is_file() or not path.is_file():
+        return None
+    try:
+        data = json.loads(path.read_text(encoding="utf-8"))
+    except (OSError, ValueError):
+        return None
+    if not isinstance(data, dict) or data.get("format") != MANIFEST_FORMAT or not isinstance(data.get("pages"), dict):
+        return None
+    return data
+
+
+@dataclass
+class Reuse:
+    """What a build may take from the site it replaces."""
+
+    tool: str
+    inputs: Inputs | None
+    previous: dict[str, Any] | None
+    old_site: Path
+    reused: int = 0
+
+    def page_key(self, result: ChannelResult, ctx: render.Context, rel: str) -> str | None:
+        if self.inputs is None:
+            return None
+        ch = result.channel
+        file_key = self.inputs.files.get(ch.source.file)
+        if file_key is None:
+            return None
+        linked = [(repr(f), [ctx.paths.get(c, "") for c in f.channels]) for f in ctx.by_channel.get(ch.id, ())]
+        return _digest(self.tool, self.inputs.system, ch.source.file, file_key, rel, ctx.status[ch.id],
+                       repr(result.budget), repr(linked), repr(ctx.proposals.get(ch.id)))
+
+    def take(self, rel: str, key: str | None, tmp: Path) -> bool:
+        """Link (or copy) an unchanged page from the current site; False when it must be rendered."""
+        if key is None or self.previous is None or self.previous["pages"].get(rel) != key:
+            return False
+        return _carry(self.old_site / rel, tmp / rel)
+
+
+def _carry(source: Path, target: Path) -> bool:
+    if not source.is_file() or source.is_symlink():
+        return False
+    target.parent.mkdir(parents=True, exist_ok=True)
+    try:
+        os.link(source, target)
+    except OSError:
+        try:
+            shutil.copyfile(source, target)
+        except OSError:
+            return False
+    return True
+
+
+# ---------------------------------------------------------------------------------------------
+# Filling the temporary folder
+# ---------------------------------------------------------------------------------------------
+
+_JOB: tuple[Path, render.Context, jinja2.Environment] | None = None
+"""The state a forked worker renders from (inherited, never pickled)."""
+
+
+def _render_chunk(indices: list[int]) -> int:
+    assert _JOB is not None
+    tmp, ctx, env = _JOB
+    for i in indices:
+        result = ctx.analysis.channels[i]
+        _write(tmp, ctx.paths[result.channel.id], channel_html(result, ctx, env))
+    return len(indices)
+
+
+def _pool_size(todo: int) -> int:
+    if todo < POOL_MIN_PAGES or "fork" not in multiprocessing.get_all_start_methods():
+        return 0
+    cpus = len(os.sched_getaffinity(0)) if hasattr(os, "sched_getaffinity") else (os.cpu_count() or 1)
+    return min(cpus, 8) if cpus > 1 else 0
+
+
 def _fill(tmp: Path, analysis: SystemAnalysis, findings: list[Finding], env: jinja2.Environment,
-          progress: Progress | None) -> int:
-    """Write the whole site into ``tmp``; returns the number of HTML pages."""
+          progress: Progress | None, reuse: Reuse | None = None) -> tuple[int, dict[str, str]]:
+    """Write the whole site into ``tmp``; returns the number of HTML pages and the page keys."""
+    global _JOB
     assets = tmp / "assets"
     assets.mkdir()
     for name in STATIC:
         shutil.copyfile(TEMPLATES / "static" / name, assets / name)
-    shutil.copyfile(plotly_bundle(), tmp / PLOTLY_ASSET)
-    _write(tmp, "data/spec.json", to_json(analysis, findings))
+    old_bundle = reuse.old_site / PLOTLY_ASSET if reuse is not None and reuse.previous is not None else None
+    if old_bundle is None or not _carry(old_bundle, tmp / PLOTLY_ASSET):
+        shutil.copyfile(plotly_bundle(), tmp / PLOTLY_ASSET)
+    ctx = _context(analysis, findings)
     total = page_count(analysis)
     done = 0
-    for rel, text in pages(analysis, findings, env):
-        _write(tmp, rel, text)
-        done += 1
+
+    def tick(n: int, rel: str) -> None:
+        nonlocal done
+        done += n
         if progress is not None:
             progress(done, total, rel)
+
+    keys: dict[str, str] = {}
+    todo: list[int] = []
+    for i, result in enumerate(analysis.channels):
+        rel = ctx.paths[result.channel.id]
+        key = reuse.page_key(result, ctx, rel) if reuse is not None else None
+        if key is not None:
+            keys[rel] = key
+        if reuse is not None and reuse.take(rel, key, tmp):
+            reuse.reused += 1
+            tick(1, rel)
+        else:
+            todo.append(i)
+    (tmp / "channels").mkdir(exist_ok=True)
+    workers = _pool_size(len(todo))
+    if workers:
+        chunks = [todo[k:k + POOL_CHUNK] for k in range(0, len(todo), POOL_CHUNK)]
+        _JOB = (tmp, ctx, env)
+        try:
+            with multiprocessing.get_context("fork").Pool(workers) as pool:
+                pending = pool.map_async(_render_chunk, chunks, chunksize=1)
+                _write(tmp, "data/spec.json", to_json(analysis, findings))  # the parent works meanwhile
+                for rel, text in shared_pages(ctx, env):
+                    _write(tmp, rel, text)
+                    tick(1, rel)
+                for n in pending.get():
+                    tick(n, "channels/")
+        finally:
+            _JOB = None
+    else:
+        _write(tmp, "data/spec.json", to_json(analysis, findings))
+        for rel, text in shared_pages(ctx, env):
+            _write(tmp, rel, text)
+            tick(1, rel)
+        for i in todo:
+            result = analysis.channels[i]
+            rel = ctx.paths[result.channel.id]
+            _write(tmp, rel, channel_html(result, ctx, env))
+            tick(1, rel)
     _write(tmp, MARKER, MARKER_TEXT)
-    return done
+    return done, keys
 
 
 def _swap(tmp: Path, out: Path) -> None:
@@ -272,8 +474,12 @@ def _swap(tmp: Path, out: Path) -> None:
 
 
 def write_site(analysis: SystemAnalysis, findings: list[Finding], output: Path, specs: Path,
-               progress: Progress | None = None) -> int:
-    """Render the site into a temporary sibling of ``output`` and swap it in; returns the page count."""
+               progress: Progress | None = None, reuse: Reuse | None = None) -> int:
+    """Render the site into a temporary sibling of ``output`` and swap it in; returns the page count.
+
+    With ``reuse``, unchanged channel pages come from the current site and the new site gets a
+    manifest for the next build.
+    """
     check_output(output, specs)
     env = environment()
     out = output.resolve()
@@ -281,7 +487,19 @@ def write_site(analysis: SystemAnalysis, findings: list[Finding], output: Path, 
     tmp = Path(tempfile.mkdtemp(prefix=f".{out.name}.building-", dir=out.parent))
     try:
         (tmp / BUILDING_MARKER).write_text(f"{os.getpid()}\n", encoding="utf-8")
-        count = _fill(tmp, analysis, findings, env, progress)
+        count, keys = _fill(tmp, analysis, findings, env, progress, reuse)
+        if reuse is not None and reuse.inputs is not None:
+            manifest = {
+                "format": MANIFEST_FORMAT,
+                "tool": reuse.tool,
+                "inputs": reuse.inputs.tree,
+                "pages": keys,
+                "count": count,
+                "channels": len(analysis.channels),
+                "findings": [[f.rule, f.severity, list(f.channels), f.file, f.line, f.message, f.waived,
+                              f.waiver_reason] for f in findings],
+            }
+            _write(tmp, MANIFEST, json.dumps(manifest, sort_keys=True, separators=(",", ":")) + "\n")
         _swap(tmp, out)
         (out / BUILDING_MARKER).unlink()
     except BaseException:
@@ -290,11 +508,56 @@ def write_site(analysis: SystemAnalysis, findings: list[Finding], output: Path, 
     return count
 
 
-def build(specs: Path | str, output: Path | str, progress: Progress | None = None) -> BuildSummary:
-    """Load, analyse and check ``specs``, then publish the site into ``output``."""
+def _unchanged(previous: dict[str, Any] | None, tool: str, inputs: Inputs | None) -> bool:
+    return (previous is not None and inputs is not None and previous.get("tool") == tool
+            and previous.get("inputs") == inputs.tree and isinstance(previous.get("findings"), list))
+
+
+def _intact(out: Path, previous: dict[str, Any]) -> bool:
+    """Whether the current site is still what the manifest describes: no link anywhere in it (a
+    tampered site must be rebuilt, never trusted) and every channel page it lists present."""
+    pages = previous.get("pages")
+    if not isinstance(pages, dict):
+        return False
+    present: set[str] = set()
+    stack = [(out, "")]
+    while stack:
+        folder, prefix = stack.pop()
+        try:
+            entries = list(os.scandir(folder))
+        except OSError:
+            return False
+        for entry in entries:
+            if entry.is_symlink():
+                return False
+            rel = prefix + entry.name
+            if entry.is_dir(follow_symlinks=False):
+                stack.append((Path(entry.path), rel + "/"))
+            else:
+                present.add(rel)
+    return all(rel in present for rel in pages)
+
+
+def build(specs: Path | str, output: Path | str, progress: Progress | None = None,
+          incremental: bool = True) -> BuildSummary:
+    """Load, analyse and check ``specs``, then publish the site into ``output``.
+
+    ``incremental=False`` ignores the current site's manifest and renders every page.
+    """
     specs_path, out_path = Path(specs), Path(output)
     check_output(out_path, specs_path)  # refuse early, before any work
+    reuse: Reuse | None = None
+    if incremental:
+        tool, inputs = tool_key(), input_keys(specs_path)
+        previous = read_manifest(out_path)
+        if previous is not None and not _intact(out_path, previous):
+            previous = None  # a site with links in it, or pages missing, is neither trusted nor reused
+        if previous is not None and _unchanged(previous, tool, inputs):
+            _clean_leftovers(out_path.resolve())  # a no-op build still tidies up after killed ones
+            findings = [Finding(r[0], r[1], tuple(r[2]), r[3], r[4], r[5], r[6], r[7]) for r in previous["findings"]]
+            return BuildSummary(out_path, int(previous["count"]), int(previous["channels"]), findings)
+        reuse = Reuse(tool, inputs, previous, out_path.resolve())
     analysis = analyze(load_spec(specs_path))
     findings = run_rules(analysis)
-    count = write_site(analysis, findings, out_path, specs_path, progress)
+    count = write_site(analysis, findings, out_path, specs_path, progress, reuse)
     return BuildSummary(out_path, count, len(analysis.channels), findings)

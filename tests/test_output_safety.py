@@ -216,7 +216,8 @@ def _run(command: list[str], out: Path, kill_at: float | None = None) -> tuple[f
 def test_a_build_killed_at_any_moment_leaves_the_previous_site(tmp_path: Path) -> None:
     specs = _big_tree(tmp_path / "specs")
     out = tmp_path / "site"
-    command = [sys.executable, "-m", "generator", "build", str(specs), "-o", str(out)]
+    # --fresh: every page is written even when nothing changed, so a kill can land mid-write
+    command = [sys.executable, "-m", "generator", "build", str(specs), "-o", str(out), "--fresh"]
     appeared, total = _run(command, out)  # the first site, timed
     previous = snapshot(out)
     assert len(previous) > 300

@@ -323,9 +323,16 @@ def analyze_budgets(spec: Spec) -> Budgets:
         if conv.clock is not None and conv.clock in system.clocks:
             clocks.extend(_clock_checks(conv, system.clocks[conv.clock], on_converter[cid]))
 
+    on_link: dict[str, list[str]] = {}
+    by_group: dict[str, list[Channel]] = {}
+    for ch in spec.channels:  # one pass: a large system has hundreds of links and groups
+        if ch.conversion.link is not None and ch.id in per_channel:
+            on_link.setdefault(ch.conversion.link, []).append(ch.id)
+        if ch.match is not None:
+            by_group.setdefault(ch.match, []).append(ch)
     links = []
     for lid, link in sorted(system.links.items()):
-        ids = tuple(ch.id for ch in spec.channels if ch.conversion.link == lid and ch.id in per_channel)
+        ids = tuple(on_link.get(lid, ()))
         payload = sum(per_channel[cid].data_rate_bps for cid in ids)
         load = dsp.link_load(payload, link.overhead)
         links.append(LinkBudget(lid, ids, payload, load, link.capacity_bps,
@@ -334,8 +341,11 @@ def analyze_budgets(spec: Spec) -> Budgets:
 
     stores = []
     duration = system.record_duration_s
+    feeds: dict[str | None, list[LinkBudget]] = {}
+    for lk in links:
+        feeds.setdefault(lk.store, []).append(lk)
     for sid, store in sorted(system.stores.items()):
-        feeding = [lk for lk in links if lk.store == sid]
+        feeding = feeds.get(sid, [])
         stream = sum(lk.payload_bps for lk in feeding)
         needed = dsp.record_bytes(stream, duration) if duration is not None else None
         stores.append(StoreBudget(sid, tuple(lk.id for lk in feeding), stream, duration, needed, store.capacity_bytes,
@@ -344,7 +354,7 @@ def analyze_budgets(spec: Spec) -> Budgets:
 
     groups = []
     for gid in sorted(system.groups):
-        members = [ch for ch in spec.channels if ch.match == gid]
+        members = by_group.get(gid, [])
         if members:
             groups.append(_group_timing(spec, gid, members, skews))
 

@@ -39,7 +39,6 @@ from typing import overload
 
 import numpy as np
 from numpy.typing import NDArray
-from scipy import optimize, signal
 
 FAMILIES = ("butterworth", "bessel", "chebyshev1", "chebyshev2", "elliptic")
 MAX_ORDER = 20
@@ -113,6 +112,8 @@ def _prototype(
         raise ValueError("stopband attenuation must be positive")
     if family == "elliptic" and stopband_db <= ripple_db:
         raise ValueError("stopband attenuation must exceed the passband ripple")
+    from scipy import signal  # imported when first needed: scipy takes about a second to import
+
     with warnings.catch_warnings(), np.errstate(all="ignore"):
         warnings.simplefilter("ignore")
         if family == "butterworth":
@@ -281,6 +282,8 @@ def _solve_normalised_loss(family: str, order: int, ripple: float, stop: float, 
     def g(logx: float) -> float:
         return float(_loss_normalised(z, p, k, np.array([math.exp(logx)]))[0]) - loss_db
 
+    from scipy import optimize
+
     lo, hi = math.log(1e-12), math.log(1e12)
     if g(lo) > 0 or g(hi) < 0:
         return None
@@ -299,6 +302,8 @@ def _least_order_normalised(family: str, ratio: float, ap: float, as_: float) ->
             if _meets("bessel", n, corner, 0.1, 80.0, 1.0, ratio, ap, as_):
                 return n, corner
         return None
+    from scipy import signal
+
     fn = {"butterworth": signal.buttord, "chebyshev1": signal.cheb1ord,
           "chebyshev2": signal.cheb2ord, "elliptic": signal.ellipord}[family]
     with warnings.catch_warnings(), np.errstate(all="ignore"):
@@ -390,6 +395,8 @@ def frequency_for_attenuation(filt: AnalogFilter, atten_db: float) -> float | No
 
     def g(v: float) -> float:
         return float(_loss_normalised(z, p, k, np.array([v]))[0]) - atten_db
+
+    from scipy import optimize
 
     lo, hi = float(x[i - 1]), float(x[i])
     root = float(optimize.brentq(g, lo, hi, xtol=1e-14, rtol=1e-12)) if g(lo) < 0 < g(hi) else hi

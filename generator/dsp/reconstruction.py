@@ -23,7 +23,6 @@ from __future__ import annotations
 import math
 
 import numpy as np
-from scipy.optimize import brentq
 
 # 20 log10(2) and 10 log10(1.5): the exact constants behind "6.02 N + 1.76 dB" [MT-001].
 _DB_PER_BIT = 20.0 * math.log10(2.0)
@@ -114,6 +113,8 @@ def max_hold_fraction(loss_db: float) -> float:
 
     def excess(x: float) -> float:
         return -hold_droop_db(x, 1.0) - loss_db
+
+    from scipy.optimize import brentq  # imported when first needed
 
     return float(brentq(excess, 1e-12, 0.5, xtol=1e-15, rtol=1e-12))
 

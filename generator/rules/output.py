@@ -6,8 +6,6 @@ import math
 from collections.abc import Callable, Iterator
 from dataclasses import replace
 
-from scipy.optimize import brentq
-
 from ..analysis import ChannelResult, SystemAnalysis
 from ..analysis.output import filter_loss_db, image_rejection_at
 from ..dsp import reconstruction as rec
@@ -27,6 +25,8 @@ def _root(fn: Callable[[float], float], lo: float, hi: float) -> float | None:
         a, b = fn(lo), fn(hi)
         if not (math.isfinite(a) and math.isfinite(b)) or a * b > 0:
             return None
+        from scipy.optimize import brentq  # imported when first needed
+
         return float(brentq(fn, lo, hi, rtol=1e-10))
     except (ValueError, ZeroDivisionError, OverflowError):
         return None

@@ -1,0 +1,143 @@
+"""The scale benchmark: check, full build, no-op and one-channel rebuilds against a baseline.
+
+    python -m tests.bench.run --sizes 100 1000 10000 [--runs 3] [--work DIR] [--json FILE]
+
+For each size N a synthetic tree is written (:mod:`tests.bench.synth`), then every figure is the
+median wall time of ``--runs`` runs of a child process:
+
+baseline     the least work any publisher of the same channel pages must do (:mod:`tests.bench.baseline`)
+check        ``specfold check`` (text report to /dev/null)
+build        ``specfold build`` into an empty folder with no cache
+noop         ``specfold build`` again, nothing changed
+one_channel  ``specfold build`` after appending a sentence to one channel's notes
+
+Peak resident memory is the largest maximum RSS of the full builds (``/usr/bin/time -f %M``, or
+``getrusage(RUSAGE_CHILDREN)`` in a wrapper where that tool is missing).  Site size and the
+median channel page size are read from the built folder.  Every figure is printed with its
+ratio to the baseline (rebuilds also against the full build) and written as JSON.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import os
+import shutil
+import statistics
+import subprocess
+import sys
+import tempfile
+import time
+from pathlib import Path
+from typing import Any
+
+from .synth import write_system
+
+ROOT = Path(__file__).resolve().parents[2]
+TIME = Path("/usr/bin/time")
+CACHE = ".specfold-cache"
+
+
+def _run(args: list[str], mem_file: Path | None = None) -> tuple[float, int]:
+    """Run one child from the repository root; returns (wall seconds, peak RSS in KiB or 0)."""
+    cmd = [sys.executable, *args]
+    if mem_file is not None and TIME.exists():
+        cmd = [str(TIME), "-f", "%M", "-o", str(mem_file), *cmd]
+    start = time.perf_counter()
+    subprocess.run(cmd, cwd=ROOT, check=False, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL,
+                   env={**os.environ, "PYTHONHASHSEED": "0"})
+    wall = time.perf_counter() - start
+    rss = 0
+    if mem_file is not None and mem_file.exists():
+        rss = int(mem_file.read_text().split()[-1])
+    return wall, rss
+
+
+def _clean(out: Path) -> None:
+    shutil.rmtree(out, ignore_errors=True)
+    shutil.rmtree(out.parent / CACHE, ignore_errors=True)
+
+
+def _sizes(out: Path) -> tuple[int, int]:
+    total = sum(p.stat().st_size for p in out.rglob("*") if p.is_file())
+    pages = sorted(p.stat().st_size for p in (out / "channels").glob("*.html"))
+    return total, int(statistics.median(pages)) if pages else 0
+
+
+def measure(n: int, runs: int, work: Path) -> dict[str, Any]:
+    specs = write_system(n, work / f"specs-{n}")
+    site_dir = work / f"site-{n}" / "out"
+    site_dir.parent.mkdir(parents=True, exist_ok=True)
+    base_out = work / f"baseline-{n}"
+    mem = work / "rss.txt"
+    times: dict[str, list[float]] = {k: [] for k in ("baseline", "check", "build", "noop", "one_channel")}
+    peak = 0
+    first = subprocess.run([sys.executable, "-m", "generator", "check", str(specs), "--fail-on", "never"],
+                           cwd=ROOT, capture_output=True, text=True, check=False)
+    if first.returncode != 0:
+        raise SystemExit(f"the synthetic tree of {n} channels does not check:\n{first.stderr[-2000:]}")
+    edited = sorted((specs / "channels").rglob("*.md"))[n // 2]
+    for i in range(runs):
+        shutil.rmtree(base_out, ignore_errors=True)
+        times["baseline"].append(_run(["-m", "tests.bench.baseline", str(specs), str(base_out)])[0])
+        times["check"].append(_run(["-m", "generator", "check", str(specs), "--fail-on", "never"])[0])
+        _clean(site_dir)
+        wall, rss = _run(["-m", "generator", "build", str(specs), "-o", str(site_dir)], mem)
+        times["build"].append(wall)
+        peak = max(peak, rss)
+        times["noop"].append(_run(["-m", "generator", "build", str(specs), "-o", str(site_dir)])[0])
+        with edited.open("a", encoding="utf-8") as fh:
+            fh.write(f"\nEdited for benchmark run {i}.\n")
+        times["one_channel"].append(_run(["-m", "generator", "build", str(specs), "-o", str(site_dir)])[0])
+    site_bytes, page_median = _sizes(site_dir)
+    shutil.rmtree(base_out, ignore_errors=True)
+    med = {k: statistics.median(v) for k, v in times.items()}
+    base = med["baseline"]
+    return {
+        "channels": n,
+        "runs": runs,
+        "seconds": {k: round(v, 3) for k, v in med.items()},
+        "all_seconds": {k: [round(x, 3) for x in v] for k, v in times.items()},
+        "ratio_to_baseline": {k: round(v / base, 3) for k, v in med.items() if k != "baseline"},
+        "ratio_to_build": {k: round(med[k] / med["build"], 3) for k in ("noop", "one_channel")},
+        "peak_rss_mb": round(peak / 1024, 1),
+        "site_mb": round(site_bytes / 1e6, 2),
+        "median_channel_page_kb": round(page_median / 1000, 1),
+    }
+
+
+def _print(r: dict[str, Any]) -> None:
+    s, rb, rf = r["seconds"], r["ratio_to_baseline"], r["ratio_to_build"]
+    print(f"N = {r['channels']} ({r['runs']} runs, medians)")
+    print(f"  baseline      {s['baseline']:8.2f} s")
+    for k in ("check", "build", "noop", "one_channel"):
+        extra = f"   {rf[k]:.3f} x build" if k in rf else ""
+        print(f"  {k:<12}  {s[k]:8.2f} s   {rb[k]:.3f} x baseline{extra}")
+    print(f"  peak RSS {r['peak_rss_mb']} MB; site {r['site_mb']} MB; median channel page "
+          f"{r['median_channel_page_kb']} KB")
+
+
+def main() -> None:
+    p = argparse.ArgumentParser(description="specfold scale benchmark")
+    p.add_argument("--sizes", type=int, nargs="+", default=[100, 1000])
+    p.add_argument("--runs", type=int, default=3)
+    p.add_argument("--work", type=Path, default=None, help="scratch folder (default: a temporary one, removed)")
+    p.add_argument("--json", type=Path, default=Path("test-artifacts/bench.json"))
+    args = p.parse_args()
+    work = args.work or Path(tempfile.mkdtemp(prefix="specfold-bench-"))
+    results = []
+    try:
+        for n in args.sizes:
+            r = measure(n, args.runs, work)
+            _print(r)
+            results.append(r)
+            args.json.parent.mkdir(parents=True, exist_ok=True)
+            args.json.write_text(json.dumps({"results": results}, indent=1) + "\n", encoding="utf-8")
+    finally:
+        if args.work is None:
+            shutil.rmtree(work, ignore_errors=True)
+    print(f"wrote {args.json}")
+
+
+if __name__ == "__main__":
+    main()

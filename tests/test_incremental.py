@@ -1,0 +1,107 @@
+"""Incremental builds: a rebuild reuses unchanged pages and still equals a fresh build, byte for byte.
+
+The reference for every check is a fresh build (``incremental=False``) of the same tree into
+another folder: whatever the cache does, the published site must not differ from it.
+Also a smoke test that the benchmark's synthetic trees load and check without errors.
+"""
+
+from __future__ import annotations
+
+import shutil
+from pathlib import Path
+
+from generator import site
+from generator.analysis import analyze
+from generator.load import load_spec
+from generator.rules import run_rules
+
+from .bench.synth import write_system
+from .conftest import DEMO
+
+
+def _pages(folder: Path) -> dict[str, bytes]:
+    """Every published file, without the build cache."""
+    return {p.relative_to(folder).as_posix(): p.read_bytes() for p in sorted(folder.rglob("*"))
+            if p.is_file() and ".specfold-cache" not in p.parts}
+
+
+def _fresh(specs: Path, out: Path) -> dict[str, bytes]:
+    site.build(specs, out, incremental=False)
+    return _pages(out)
+
+
+def test_unchanged_rebuild_touches_nothing(tmp_path: Path) -> None:
+    out = tmp_path / "site"
+    site.build(DEMO, out)
+    stamps = {p: p.stat().st_mtime_ns for p in out.rglob("*") if p.is_file()}
+    inode = out.stat().st_ino
+    summary = site.build(DEMO, out)
+    assert out.stat().st_ino == inode  # the folder was not swapped
+    assert {p: p.stat().st_mtime_ns for p in out.rglob("*") if p.is_file()} == stamps
+    fresh = analyze(load_spec(DEMO))
+    assert summary.channels == len(fresh.channels)
+    assert summary.findings == run_rules(fresh)  # the summary's findings are those of a real check
+
+
+def test_one_edited_channel_is_the_only_page_rendered_again(tmp_path: Path) -> None:
+    specs = tmp_path / "specs"
+    shutil.copytree(DEMO, specs)
+    out = tmp_path / "site"
+    site.build(specs, out)
+    before = {p.name: p.stat().st_ino for p in (out / "channels").iterdir()}
+    edited = specs / "channels" / "TQ-SHAFT.md"
+    edited.write_text(edited.read_text(encoding="utf-8") + "\nTorque sensor re-zeroed after the blade change.\n",
+                      encoding="utf-8")
+    site.build(specs, out)
+    after = {p.name: p.stat().st_ino for p in (out / "channels").iterdir()}
+    assert sorted(before) == sorted(after)
+    relinked = {name for name in after if after[name] == before[name]}
+    assert relinked == set(after) - {"TQ-SHAFT.html"}  # hard links to the previous pages
+    assert "re-zeroed" in (out / "channels" / "TQ-SHAFT.html").read_text(encoding="utf-8")
+    assert _pages(out) == _fresh(specs, tmp_path / "fresh")
+
+
+def test_a_system_change_renders_every_page_again(tmp_path: Path) -> None:
+    specs = tmp_path / "specs"
+    shutil.copytree(DEMO, specs)
+    out = tmp_path / "site"
+    site.build(specs, out)
+    system = specs / "system.toml"
+    system.write_text(system.read_text(encoding="utf-8").replace('revision = "B"', 'revision = "C"'),
+                      encoding="utf-8")
+    site.build(specs, out)
+    page = (out / "channels" / "ACC-MB-01.html").read_text(encoding="utf-8")
+    assert "C" in page and _pages(out) == _fresh(specs, tmp_path / "fresh")
+
+
+def test_a_finding_on_another_channel_reaches_a_reused_page(tmp_path: Path) -> None:
+    # group-skew spans channels: editing one member changes the findings shown on the others
+    specs = tmp_path / "specs"
+    shutil.copytree(DEMO, specs)
+    out = tmp_path / "site"
+    site.build(specs, out)
+    member = specs / "channels" / "STR-BLD-2.md"
+    member.write_text(member.read_text(encoding="utf-8").replace('match = "blade-roots"\n', ""), encoding="utf-8")
+    site.build(specs, out)
+    assert _pages(out) == _fresh(specs, tmp_path / "fresh")
+
+
+def test_a_damaged_manifest_means_a_full_build(tmp_path: Path) -> None:
+    out = tmp_path / "site"
+    site.build(DEMO, out)
+    (out / site.MANIFEST).write_text("{not json", encoding="utf-8")
+    site.build(DEMO, out)
+    assert site.read_manifest(out) is not None
+    assert _pages(out) == _fresh(DEMO, tmp_path / "fresh")
+
+
+def test_synthetic_trees_load_and_check_without_errors(tmp_path: Path) -> None:
+    # the benchmark's generator: 40 channels = two full bays and part of a third
+    specs = write_system(40, tmp_path / "synth")
+    analysis = analyze(load_spec(specs))
+    assert len(analysis.channels) == 40
+    kinds = {r.channel.kind for r in analysis.channels}
+    assert kinds == {"input", "output", "image"}
+    assert len(analysis.spec.system.converters) == 9 and len(analysis.spec.system.links) == 3
+    errors = [f for f in run_rules(analysis) if f.severity == "error" and not f.waived]
+    assert errors == []
