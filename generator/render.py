@@ -40,7 +40,7 @@ SAFETY_DEFERRAL = (
 
 NOT_COMPUTED = ""
 
-TABLE_FIRST_ROWS = 200
+TABLE_FIRST_ROWS = 100
 """Channel rows the overview writes as HTML; every row is also in its JSON block, and site.js shows
 the rest on demand (in chunks of this size, all of them before printing).  Systems up to this size
 get a complete table without JavaScript."""

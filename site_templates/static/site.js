@@ -72,7 +72,7 @@
     { show: F.bits, sort: F.bits, cls: "num" }, { show: F.filter },
     { show: F.data_rate, sort: F.data_rate_sort, cls: "num" }, { show: F.status, sort: F.status, badge: true }
   ];
-  var CHUNK = 200;  // unless the table says (data-chunk: the rows the page wrote as HTML)
+  var CHUNK = 100;  // unless the table says (data-chunk: the rows the page wrote as HTML)
 
   function keyOf(raw, type) {
     if (type === "num") {
@@ -117,6 +117,8 @@
     this.view = this.order;                                 // the rows that pass the filter
     this.shown = Math.min(table.tBodies[0].rows.length, rows.length);  // already written as HTML
     this.hay = null;
+    this.trs = new Array(rows.length);  // each row's element, made once and reused
+    for (var i = 0; i < this.shown; i++) this.trs[i] = table.tBodies[0].rows[i];
     this.more = document.getElementById(table.id + "-more");
     this.buildMore();
     this.update();
@@ -172,9 +174,13 @@
     this.filter();
   };
 
+  DataTable.prototype.tr = function (k) {
+    return this.trs[k] || (this.trs[k] = makeRow(this.rows[k]));
+  };
+
   DataTable.prototype.render = function (count) {
     var n = Math.min(count, this.view.length), frag = document.createDocumentFragment();
-    for (var i = 0; i < n; i++) frag.appendChild(makeRow(this.rows[this.view[i]]));
+    for (var i = 0; i < n; i++) frag.appendChild(this.tr(this.view[i]));
     var body = this.table.tBodies[0];
     body.textContent = "";
     body.appendChild(frag);
@@ -184,7 +190,7 @@
 
   DataTable.prototype.extend = function (count) {
     var n = Math.min(this.shown + count, this.view.length), frag = document.createDocumentFragment();
-    for (var i = this.shown; i < n; i++) frag.appendChild(makeRow(this.rows[this.view[i]]));
+    for (var i = this.shown; i < n; i++) frag.appendChild(this.tr(this.view[i]));
     this.table.tBodies[0].appendChild(frag);
     this.shown = n;
     this.update();
