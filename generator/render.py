@@ -11,6 +11,7 @@ maps ids to safe file names even if an id were to hold characters the loader rej
 from __future__ import annotations
 
 import functools
+import json
 import math
 import re
 from collections.abc import Iterable, Mapping, Sequence
@@ -38,6 +39,15 @@ SAFETY_DEFERRAL = (
 )
 
 NOT_COMPUTED = ""
+
+TABLE_FIRST_ROWS = 100
+"""Channel rows the overview writes as HTML; every row is also in its JSON block, and site.js shows
+the rest on demand (in chunks of this size, all of them before printing).  Systems up to this size
+get a complete table without JavaScript."""
+
+# The column order of the overview's JSON rows; site.js reads the same order (ROW_FIELDS there).
+ROW_FIELDS = ("id", "href", "title", "kind", "band", "band_sort", "rate", "rate_sort", "bits", "filter",
+              "data_rate", "data_rate_sort", "status")
 
 # nh3 settings for Markdown notes: the tags Markdown produces, http(s)/mailto links only.
 _NOTE_TAGS = {
@@ -207,6 +217,8 @@ class OverviewPage:
     rows: tuple[ChannelRow, ...]
     kinds: tuple[str, ...]
     statuses: tuple[str, ...]
+    rows_json: Markup  # every row, as JSON (rows_json)
+    first_rows: int  # rows written as HTML
 
 
 @dataclass(frozen=True)
@@ -677,16 +689,31 @@ def budget_items(ctx: Context, root: str) -> tuple[Budgets, Budgets, Budgets]:
     return tuple(converters), tuple(links), tuple(stores)
 
 
+def script_json(value: Any) -> Markup:
+    """Compact JSON safe inside ``<script type="application/json">``: no ``<``, ``>`` or ``&`` in it,
+    so no text can close the element or open a comment; deterministic (insertion order kept)."""
+    text = json.dumps(value, separators=(",", ":"), ensure_ascii=False, allow_nan=False)
+    return Markup(text.replace("<", "\\u003c").replace(">", "\\u003e").replace("&", "\\u0026"))
+
+
+def rows_json(rows: Sequence[ChannelRow]) -> Markup:
+    """The overview's channel rows as a JSON array of string arrays, columns in ROW_FIELDS order."""
+    return script_json([[getattr(r, f) for f in ROW_FIELDS] for r in rows])
+
+
 def overview_page(ctx: Context) -> OverviewPage:
     converters, links, stores = budget_items(ctx, "")
+    rows = tuple(channel_row(r, ctx) for r in ctx.analysis.channels)
     return OverviewPage(
         frame=_frame(ctx, "Overview", "", "index.html"),
         description=ctx.analysis.spec.system.description,
         totals=totals(ctx),
         budgets=(*converters, *links, *stores),
-        rows=tuple(channel_row(r, ctx) for r in ctx.analysis.channels),
+        rows=rows,
         kinds=("input", "output", "image"),
         statuses=("ok", "warning", "error"),
+        rows_json=rows_json(rows),
+        first_rows=TABLE_FIRST_ROWS,
     )
 
 

@@ -23,7 +23,7 @@ from typing import Any
 
 import pytest
 
-from generator import site
+from generator import render, site
 
 from .conftest import DEMO, ROOT
 
@@ -262,6 +262,87 @@ def test_status_filter(browser_page: tuple[Any, Watch], demo_site: Path) -> None
         assert len(shown) == sum(r["status"] == status for r in every)
     page.select_option("form.filters select[name=status]", "")
     assert len(_visible_rows(page)) == len(every)
+    assert watch.problems == []
+
+
+# The data-driven table past its first rows: the demo built with 5 rows written as HTML, so sort,
+# filter, "show more" and print work on rows the page never wrote as HTML.
+# ---------------------------------------------------------------------------------------------
+
+FIRST = 5
+
+
+@pytest.fixture(scope="module")
+def chunked_site(tmp_path_factory: pytest.TempPathFactory) -> Path:
+    out = tmp_path_factory.mktemp("chunked") / "site"
+    with pytest.MonkeyPatch.context() as mp:
+        mp.setattr(render, "TABLE_FIRST_ROWS", FIRST)
+        site.build(DEMO, out)
+    return out
+
+
+def _all_rows(site_dir: Path) -> list[list[str]]:
+    html = (site_dir / "index.html").read_text(encoding="utf-8")
+    found = re.search(r'<script type="application/json" id="channel-rows">(.*?)</script>', html, re.S)
+    assert found
+    rows: list[list[str]] = json.loads(found.group(1))
+    return rows
+
+
+def test_chunked_table_shows_more_on_demand(browser_page: tuple[Any, Watch], chunked_site: Path) -> None:
+    page, watch = browser_page
+    every = _all_rows(chunked_site)
+    assert len(every) == len(list((DEMO / "channels").glob("*.md"))) > 2 * FIRST
+    visit(page, watch, chunked_site / "index.html")
+    written = _visible_rows(page)  # the rows the page wrote as HTML
+    assert [r["id"] for r in written] == [r[0] for r in every[:FIRST]]
+    assert page.locator("form.filters output[name=shown]").text_content() == f"{len(every)} of {len(every)}"
+    page.fill("form.filters input[name=q]", "a")
+    page.fill("form.filters input[name=q]", "")  # now every row shown is drawn from the data
+    drawn = _visible_rows(page)
+    assert [re.sub(r"\s+", "", r["text"]) for r in drawn] == [re.sub(r"\s+", "", r["text"]) for r in written]
+    assert page.locator("#channel-table").get_attribute("aria-rowcount") == str(len(every) + 1)
+    page.locator("#channel-table-more button", has_text="more").click()
+    assert [r["id"] for r in _visible_rows(page)] == [r[0] for r in every[: 2 * FIRST]]
+    page.locator("#channel-table-more button", has_text="all").click()
+    shown = _visible_rows(page)
+    assert [r["id"] for r in shown] == [r[0] for r in every]
+    assert not page.locator("#channel-table-more").is_visible()
+    # the rows drawn from the data carry what the HTML rows carry: link, kind, status, sort keys
+    html_rows = (chunked_site / "index.html").read_text(encoding="utf-8").count('<tr data-kind="')
+    assert html_rows == FIRST
+    for r, row in zip(shown, every, strict=True):
+        assert r["status"] == row[12] and r["rate"] == row[11]
+    assert page.locator("#channel-table tbody a").nth(len(every) - 1).get_attribute("href") == every[-1][1]
+    assert watch.problems == []
+
+
+def test_chunked_filter_and_sort_use_every_row(browser_page: tuple[Any, Watch], chunked_site: Path) -> None:
+    page, watch = browser_page
+    every = _all_rows(chunked_site)
+    visit(page, watch, chunked_site / "index.html")
+    # the status filter counts rows the page never wrote as HTML
+    status = "warning"
+    expected = [r[0] for r in every if r[12] == status]
+    assert 0 < len(expected) < len(every)
+    page.select_option("form.filters select[name=status]", status)
+    assert page.locator("form.filters output[name=shown]").text_content() == f"{len(expected)} of {len(every)}"
+    assert [r["id"] for r in _visible_rows(page)] == expected[:FIRST]
+    page.select_option("form.filters select[name=status]", "")
+    # sorting by data rate puts the smallest rates of the whole set first, not of the first rows
+    page.locator("#channel-table thead th", has_text="Data rate").click()
+    smallest = sorted(float(r[11]) for r in every if r[11])[:FIRST]
+    assert [float(r["rate"]) for r in _visible_rows(page)] == smallest
+    page.locator("#channel-table thead th", has_text="Data rate").click()
+    largest = sorted((float(r[11]) for r in every if r[11]), reverse=True)[:FIRST]
+    assert [float(r["rate"]) for r in _visible_rows(page)] == largest
+    # printing shows every matching row
+    page.fill("form.filters input[name=q]", "-")
+    matching = page.locator("form.filters output[name=shown]").text_content() or ""
+    count = int(matching.split(" of ")[0])
+    assert count > FIRST and len(_visible_rows(page)) == FIRST
+    page.evaluate("() => window.dispatchEvent(new Event('beforeprint'))")
+    assert len(_visible_rows(page)) == count
     assert watch.problems == []
 
 

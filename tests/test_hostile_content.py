@@ -47,6 +47,24 @@ OWN_FORM = {
     "input": {"type": "search", "name": "q", "placeholder": "id, title, filter…", "autocomplete": "off"},
 }
 CHART_DATA_ID = re.compile(r"^chart-[a-z]+-data$")
+ROWS_DATA_ID = "channel-rows"  # the overview's channel rows as JSON (generator/render.py rows_json)
+
+
+def _rows_problems(body: str) -> list[str]:
+    """The overview's row data: a JSON array of 13-string rows whose links stay inside the site."""
+    try:
+        rows = json.loads(body)
+    except ValueError:
+        return ["channel rows are not JSON"]
+    if not isinstance(rows, list):
+        return ["channel rows are not a list"]
+    problems = []
+    for row in rows:
+        if not (isinstance(row, list) and len(row) == 13 and all(isinstance(v, str) for v in row)):
+            problems.append(f"channel row {str(row)[:80]!r} is not 13 strings")
+        elif not row[1].startswith("channels/") or _scheme(row[1]).startswith(BAD_SCHEMES) or ":" in row[1]:
+            problems.append(f"channel row link {row[1]!r}")
+    return problems
 
 
 def _toml(text: str) -> str:
@@ -149,6 +167,9 @@ def page_problems(page: Path, site_root: Path) -> list[str]:
         if "src" in attrs:  # the site's two bundles, and nothing inline beside them
             if set(attrs) != {"src"} or attrs["src"] not in own_sources or body.strip():
                 problems.append(f"<script> {attrs} {body[:80]!r}")
+        elif (set(attrs) == {"type", "id"} and attrs == {"type": "application/json", "id": ROWS_DATA_ID}
+              and page.name == "index.html" and page.parent == site_root):
+            problems.extend(_rows_problems(body))  # the overview's rows, on the overview only
         elif set(attrs) == {"type", "id"} and attrs["type"] == "application/json" and CHART_DATA_ID.match(attrs["id"]):
             try:
                 json.loads(body)  # chart data: inert JSON that never closes its element early
@@ -201,6 +222,11 @@ def test_planted_text_is_shown_as_text(hostile: tuple[Path, dict[str, str]]) -> 
         assert "&lt;script&gt;" in raw  # escaped, not dropped
     index = (out / "index.html").read_text(encoding="utf-8")
     assert index.count(TEMPLATE_TEXT) >= len(titles)  # every title in the channel table, literally
+    parsed = _Page()
+    parsed.feed(index)
+    data = [body for attrs, body in parsed.scripts if attrs.get("id") == ROWS_DATA_ID]
+    assert len(data) == 1  # the row data the checker accepts is there, once, and holds every title intact
+    assert {row[0]: row[2] for row in json.loads(data[0])} == titles
     # waiver reasons and safety notes hold the whole corpus; jinja's escape is the expected text
     everything = str(escape(" ".join(PAYLOADS)))
     assert everything in (out / "findings.html").read_text(encoding="utf-8")
@@ -242,16 +268,34 @@ def test_the_checker_catches_what_it_looks_for(tmp_path: Path) -> None:
         '<a href="data:text/html,x">x</a>', "<iframe></iframe>", "<svg></svg>", '<div style="x:expression(1)">',
         '<script src="https://evil.invalid/x.js"></script>',
         '<script type="application/json" id="chart-x-data">{</script>',
+        '<script type="application/json" id="channel-rows">[["a"</script>',
+        '<script type="application/json" id="channel-rows">{"a": 1}</script>',
+        '<script type="application/json" id="channel-rows">[["A","javascript:alert(1)"' + ',"x"' * 11 + ']]</script>',
+        '<script type="application/json" id="channel-rows">[["A","channels/A.html"]]</script>',
+        '<script type="application/json" id="channel-rows" onload="x">[]</script>',
+        '<script type="text/javascript" id="channel-rows">[]</script>',
         '<link rel="stylesheet" href="https://evil.invalid/x.css">', '<meta http-equiv="refresh" content="0">',
     ]
     for snippet in bad:
-        page = tmp_path / "p.html"
-        page.write_text(f"<html><body>{snippet}</body></html>", encoding="utf-8")
-        assert page_problems(page, tmp_path), snippet
+        for name in ("p.html", "index.html"):  # index.html: where the row data may be, and only valid
+            page = tmp_path / name
+            page.write_text(f"<html><body>{snippet}</body></html>", encoding="utf-8")
+            assert page_problems(page, tmp_path), (name, snippet)
+        (tmp_path / "index.html").unlink()
     good = tmp_path / "g.html"
     good.write_text('<link rel="stylesheet" href="assets/site.css"><script src="assets/site.js"></script>'
                     '<script type="application/json" id="chart-noise-data">{"a": "\\u003c/script>"}</script>',
                     encoding="utf-8")
+    assert page_problems(good, tmp_path) == []
+    rows = ('<script type="application/json" id="channel-rows">[["A","channels/A.html"' + ',"\\u003c/script>"' * 11
+            + ']]</script>')
+    index = tmp_path / "index.html"
+    index.write_text(rows, encoding="utf-8")
+    assert page_problems(index, tmp_path) == []
+    (tmp_path / "channels").mkdir()
+    elsewhere = tmp_path / "channels" / "index.html"  # the row data belongs to the overview alone
+    elsewhere.write_text(rows, encoding="utf-8")
+    assert page_problems(elsewhere, tmp_path)
     assert page_problems(good, tmp_path) == []
 
 

@@ -15,6 +15,10 @@ Peak resident memory is the largest maximum RSS of the full builds (``/usr/bin/t
 ``getrusage(RUSAGE_CHILDREN)`` in a wrapper where that tool is missing).  Site size and the
 median channel page size are read from the built folder.  Every figure is printed with its
 ratio to the baseline (rebuilds also against the full build) and written as JSON.
+
+The built overview is then opened in headless Chromium (:mod:`tests.bench.overview`): its open
+time (navigation start to the table laid out) and the median latency of a filter keystroke, in
+milliseconds, under ``overview`` in the JSON (null where Chromium or Playwright is missing).
 """
 
 from __future__ import annotations
@@ -31,6 +35,7 @@ import time
 from pathlib import Path
 from typing import Any
 
+from . import overview
 from .synth import write_system
 
 ROOT = Path(__file__).resolve().parents[2]
@@ -90,6 +95,7 @@ def measure(n: int, runs: int, work: Path) -> dict[str, Any]:
             fh.write(f"\nEdited for benchmark run {i}.\n")
         times["one_channel"].append(_run(["-m", "generator", "build", str(specs), "-o", str(site_dir)])[0])
     site_bytes, page_median = _sizes(site_dir)
+    browser = overview.measure(site_dir, runs)
     shutil.rmtree(base_out, ignore_errors=True)
     med = {k: statistics.median(v) for k, v in times.items()}
     base = med["baseline"]
@@ -103,6 +109,7 @@ def measure(n: int, runs: int, work: Path) -> dict[str, Any]:
         "peak_rss_mb": round(peak / 1024, 1),
         "site_mb": round(site_bytes / 1e6, 2),
         "median_channel_page_kb": round(page_median / 1000, 1),
+        "overview": browser,
     }
 
 
@@ -115,6 +122,12 @@ def _print(r: dict[str, Any]) -> None:
         print(f"  {k:<12}  {s[k]:8.2f} s   {rb[k]:.3f} x baseline{extra}")
     print(f"  peak RSS {r['peak_rss_mb']} MB; site {r['site_mb']} MB; median channel page "
           f"{r['median_channel_page_kb']} KB")
+    o = r["overview"]
+    if o is None:
+        print("  overview page: not measured (no Chromium or Playwright)")
+    else:
+        print(f"  overview page: opens in {o['open_ms']:.0f} ms; filter keystroke {o['keystroke_ms']:.1f} ms median, "
+              f"{o['keystroke_ms_max']:.1f} ms worst")
 
 
 def main() -> None:
