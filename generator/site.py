@@ -134,7 +134,8 @@ def plotly_bundle() -> Path:
 def _context(analysis: SystemAnalysis, findings: list[Finding]) -> render.Context:
     # Proposals only for channels with findings a rate or filter can affect: cheap on a healthy spec.
     flagged = flagged_channels(analysis.spec, findings)
-    proposals = {p.channel_id: p for p in propose(analysis.spec, flagged)} if flagged else {}
+    known = {r.channel.id: r for r in analysis.channels}
+    proposals = {p.channel_id: p for p in propose(analysis.spec, flagged, known=known)} if flagged else {}
     return render.Context(analysis, findings, render.channel_paths([r.channel.id for r in analysis.channels]),
                           proposals=proposals)
 
