@@ -247,8 +247,12 @@ def replace_channel(spec: Spec, channel: Channel) -> Spec:
 
 
 def channel_findings(spec: Spec, channel: Channel, rules: Sequence[str] = TARGET_RULES) -> list[Finding]:
-    """Unwaived findings of ``rules`` on ``channel`` alone, with ``channel`` placed in ``spec``."""
-    spec2 = replace_channel(spec, channel)
+    """Unwaived findings of ``rules`` on ``channel`` alone, with ``channel`` placed in ``spec``.
+
+    Per-channel analysis and channel rules read only the channel and ``spec.system`` (and waivers
+    from the channel's own result), so the channel stands alone in the spec here: building the
+    whole channel tuple again for every candidate would make proposals quadratic in system size."""
+    spec2 = replace(spec, channels=(channel,))
     result = analyze_channel(channel, spec2)
     return [f for f in run_rules(SystemAnalysis(spec2, (result,)), only=rules) if not f.waived]
 
