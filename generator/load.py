@@ -763,8 +763,13 @@ def load_system(root: Path | str) -> System:
     return system
 
 
-def load_spec(root: Path | str, on_file: Callable[[], None] | None = None) -> Spec:
-    """Load a whole spec tree; raise :class:`SpecErrors` listing every problem found."""
+def load_spec(root: Path | str, on_file: Callable[[], None] | None = None,
+              known: Mapping[str, Channel] | None = None) -> Spec:
+    """Load a whole spec tree; raise :class:`SpecErrors` listing every problem found.
+
+    ``known`` maps a channel file's path (relative to ``root``) to the channel already loaded from
+    that very text under the same system.toml (the build cache); those files are not parsed again.
+    """
     root = Path(root)
     problems: list[SpecError] = []
     if not root.is_dir():
@@ -781,7 +786,7 @@ def load_spec(root: Path | str, on_file: Callable[[], None] | None = None) -> Sp
     seen: dict[str, str] = {}
     for path in files:
         rel = path.relative_to(root).as_posix()
-        ch = _load_channel(path, rel, system, problems)
+        ch = known[rel] if known is not None and rel in known else _load_channel(path, rel, system, problems)
         folded = path.stem.lower()
         if folded in seen:
             problems.append(SpecError(f"duplicate channel id '{path.stem}': {seen[folded]} has the same id "

@@ -26,7 +26,7 @@ from __future__ import annotations
 
 import math
 import re
-from collections.abc import Iterator, Sequence
+from collections.abc import Iterator, Mapping, Sequence
 from dataclasses import dataclass, field, replace
 from functools import lru_cache
 
@@ -247,14 +247,20 @@ def replace_channel(spec: Spec, channel: Channel) -> Spec:
 
 
 def channel_findings(spec: Spec, channel: Channel, rules: Sequence[str] = TARGET_RULES) -> list[Finding]:
-    """Unwaived findings of ``rules`` on ``channel`` alone, with ``channel`` placed in ``spec``."""
-    spec2 = replace_channel(spec, channel)
+    """Unwaived findings of ``rules`` on ``channel`` alone, with ``channel`` placed in ``spec``.
+
+    Per-channel analysis and channel rules read only the channel and ``spec.system`` (and waivers
+    from the channel's own result), so the channel stands alone in the spec here: building the
+    whole channel tuple again for every candidate would make proposals quadratic in system size."""
+    spec2 = replace(spec, channels=(channel,))
     result = analyze_channel(channel, spec2)
     return [f for f in run_rules(SystemAnalysis(spec2, (result,)), only=rules) if not f.waived]
 
 
-def _shared_counts(spec: Spec) -> dict[str, int]:
-    found = run_rules(analyze(spec), only=SHARED_RULES)
+def _shared_counts(spec: Spec, known: Mapping[str, ChannelResult] | None = None) -> dict[str, int]:
+    """Unwaived findings per shared rule; ``known`` (results of the unchanged channels, by id) spares
+    analysing every channel again when only one differs: budgets are always computed afresh."""
+    found = run_rules(analyze(spec, known), only=SHARED_RULES)
     counts: dict[str, int] = {}
     for f in found:
         if not f.waived:
@@ -384,7 +390,8 @@ def _why_none(spec: Spec, channel: Channel, base: ChannelResult, sampling_ok: li
 
 
 def propose_channel(spec: Spec, channel: Channel, prefer: Sequence[str] = DEFAULT_PREFERENCE,
-                    baseline_shared: dict[str, int] | None = None) -> Proposal:
+                    baseline_shared: dict[str, int] | None = None,
+                    known: Mapping[str, ChannelResult] | None = None) -> Proposal:
     """The best design for one channel under ``prefer``, checked against the shared constraints."""
     base_findings = channel_findings(spec, channel)
     fixed_elsewhere = sorted({f.rule for f in base_findings if f.rule in FIXED_BY_OTHER_MEANS})
@@ -404,11 +411,11 @@ def propose_channel(spec: Spec, channel: Channel, prefer: Sequence[str] = DEFAUL
         # The sampling rules can still be met: propose that, and say what stays out of reach.
         found = sampling_ok
         unfixable.extend(reasons)
-    before = baseline_shared if baseline_shared is not None else _shared_counts(spec)
+    before = baseline_shared if baseline_shared is not None else _shared_counts(spec, known)
     rejected: list[str] = []
     for d in sorted(found, key=lambda x: x.key(prefer)):
         applied = replace_channel(spec, with_design(channel, d.rate_hz, d.as_filter()))
-        new = _new_shared(before, _shared_counts(applied))
+        new = _new_shared(before, _shared_counts(applied, known))
         if new:
             rejected.append(f"{_rate_words(d.rate_hz)} with a {_ordinal(d.order)}-order {d.family} "
                             f"breaks {', '.join(new)}")
@@ -437,7 +444,8 @@ def flagged_channels(spec: Spec, findings: Sequence[Finding] | None = None) -> l
 
 
 def propose(spec: Spec, channel_ids: Sequence[str] | None = None,
-            prefer: Sequence[str] = DEFAULT_PREFERENCE) -> list[Proposal]:
+            prefer: Sequence[str] = DEFAULT_PREFERENCE,
+            known: Mapping[str, ChannelResult] | None = None) -> list[Proposal]:
     """Proposals for the named channels (default: :func:`flagged_channels`), in id order.
 
     Raises KeyError for an unknown channel id; ValueError for an unknown criterion in ``prefer``.
@@ -447,8 +455,10 @@ def propose(spec: Spec, channel_ids: Sequence[str] | None = None,
         raise ValueError(f"preference {','.join(prefer)}: use each of {', '.join(CRITERIA)} at most once")
     order = [*prefer, *(c for c in CRITERIA if c not in prefer)]
     ids = list(channel_ids) if channel_ids else flagged_channels(spec)
-    baseline = _shared_counts(spec)
-    return [propose_channel(spec, spec.channel(cid), order, baseline) for cid in ids]
+    if known is None:  # the caller's analysis of this very spec, when it has one
+        known = {r.channel.id: r for r in analyze(spec).channels}
+    baseline = _shared_counts(spec, known)
+    return [propose_channel(spec, spec.channel(cid), order, baseline, known) for cid in ids]
 
 
 def apply_proposals(spec: Spec, proposals: Sequence[Proposal]) -> Spec:

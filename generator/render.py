@@ -282,8 +282,34 @@ class Sheet:
 class BookPage:
     frame: Frame
     description: str
-    totals: Totals
+    totals: Totals | None  # None on one section of a split book (its index carries the totals)
     sheets: tuple[Sheet, ...]
+    section: str = ""  # the section's label on a split book, "" for the whole book
+
+
+@dataclass(frozen=True)
+class BookSection:
+    """One page of a split book: the channels of one converter, or of one kind without a converter."""
+
+    path: str  # "book/<name>.html"
+    label: str
+    channels: tuple[int, ...]  # indices into the analysis' channels
+
+
+@dataclass(frozen=True)
+class SectionLink:
+    href: str
+    label: str
+    channels: int
+    status: str
+
+
+@dataclass(frozen=True)
+class BookIndexPage:
+    frame: Frame
+    description: str
+    totals: Totals
+    sections: tuple[SectionLink, ...]
 
 
 @dataclass
@@ -320,7 +346,7 @@ def slug(text: str) -> str:
     return out[:120]
 
 
-def channel_paths(channel_ids: Sequence[str]) -> dict[str, str]:
+def channel_paths(channel_ids: Sequence[str], folder: str = "channels") -> dict[str, str]:
     """Channel id -> page path under ``channels/``; distinct even on a case-blind file system."""
     out: dict[str, str] = {}
     taken: set[str] = set()
@@ -331,7 +357,7 @@ def channel_paths(channel_ids: Sequence[str]) -> dict[str, str]:
             n += 1
             name = f"{base}-{n}"
         taken.add(name.lower())
-        out[cid] = f"channels/{name}.html"
+        out[cid] = f"{folder}/{name}.html"
     return out
 
 
@@ -753,17 +779,67 @@ def rules_page(ctx: Context, rules: Sequence[Rule]) -> RulesPage:
     return RulesPage(_frame(ctx, "Rules", "", "rules.html"), tuple(views))
 
 
+BOOK_SPLIT = 500
+"""A system of more channels than this gets its spec book split: one page per converter (channels
+without one grouped by kind) under ``book/``, and ``book.html`` becomes the index of those pages."""
+
+_KIND_ORDER = ("input", "output", "image")
+
+
+def book_sections(analysis: SystemAnalysis) -> tuple[BookSection, ...]:
+    """The pages of a split book, converters first (by id), then each kind without a converter;
+    no sections at all when the system is small enough for one book page."""
+    if len(analysis.channels) <= BOOK_SPLIT:
+        return ()
+    by_converter: dict[str, list[int]] = {}
+    by_kind: dict[str, list[int]] = {}
+    for i, r in enumerate(analysis.channels):
+        conv = r.channel.conversion.converter
+        if conv:
+            by_converter.setdefault(conv, []).append(i)
+        else:
+            by_kind.setdefault(r.channel.kind, []).append(i)
+    names = [f"converter {c}" for c in sorted(by_converter)]
+    names += [f"{k} channels without a converter" for k in _KIND_ORDER if k in by_kind]
+    keys = [f"conv-{c}" for c in sorted(by_converter)] + [f"kind-{k}" for k in _KIND_ORDER if k in by_kind]
+    members = [by_converter[c] for c in sorted(by_converter)] + [by_kind[k] for k in _KIND_ORDER if k in by_kind]
+    paths = channel_paths(keys, "book")
+    return tuple(BookSection(paths[k], n, tuple(m)) for k, n, m in zip(keys, names, members, strict=True))
+
+
+def _sheet(r: ChannelResult, ctx: Context, root: str) -> Sheet:
+    ch = r.channel
+    views = [_finding_view(f, ctx, root) for f in _ordered(ctx.by_channel.get(ch.id, ()))]
+    return Sheet(
+        ch.id, f"sheet-{slug(ch.id)}", ch.title, ch.kind, ctx.status[ch.id], ch.source.file,
+        ch.header.strip("\n"), figure_rows(r),
+        tuple(v for v in views if v.rule != CAUTION_RULE),
+        _caution(ch, [v for v in views if v.rule == CAUTION_RULE]),
+    )
+
+
 def book_page(ctx: Context) -> BookPage:
     """Every channel on one printable page: requirement, figures and findings per sheet."""
-    sheets = []
-    for r in ctx.analysis.channels:
-        ch = r.channel
-        views = [_finding_view(f, ctx, "") for f in _ordered(ctx.by_channel.get(ch.id, ()))]
-        sheets.append(Sheet(
-            ch.id, f"sheet-{slug(ch.id)}", ch.title, ch.kind, ctx.status[ch.id], ch.source.file,
-            ch.header.strip("\n"), figure_rows(r),
-            tuple(v for v in views if v.rule != CAUTION_RULE),
-            _caution(ch, [v for v in views if v.rule == CAUTION_RULE]),
-        ))
+    sheets = tuple(_sheet(r, ctx, "") for r in ctx.analysis.channels)
     return BookPage(_frame(ctx, "Spec book", "", "book.html"), ctx.analysis.spec.system.description,
-                    totals(ctx), tuple(sheets))
+                    totals(ctx), sheets)
+
+
+def book_section_page(ctx: Context, section: BookSection) -> BookPage:
+    """One page of a split book: the sheets of one section, linking up one folder."""
+    root = "../"
+    sheets = tuple(_sheet(ctx.analysis.channels[i], ctx, root) for i in section.channels)
+    return BookPage(_frame(ctx, f"Spec book: {section.label}", root, "book.html"),
+                    ctx.analysis.spec.system.description, None, sheets, section.label)
+
+
+def book_index_page(ctx: Context, sections: Sequence[BookSection]) -> BookIndexPage:
+    """The contents of a split book: one link per section with its channel count and worst status."""
+    links = []
+    for sec in sections:
+        ids = [ctx.analysis.channels[i].channel.id for i in sec.channels]
+        statuses = {ctx.status[c] for c in ids}
+        worst = "error" if "error" in statuses else "warning" if "warning" in statuses else "ok"
+        links.append(SectionLink(sec.path, sec.label, len(ids), worst))
+    return BookIndexPage(_frame(ctx, "Spec book", "", "book.html"), ctx.analysis.spec.system.description,
+                         totals(ctx), tuple(links))

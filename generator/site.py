@@ -5,6 +5,8 @@ Layout of a built site (every link relative, so it works from ``file://`` and an
     index.html            overview: totals, budgets, the channel table
     channels/<id>.html    one page per channel
     budgets.html  findings.html  rules.html  book.html
+    book/<name>.html      above render.BOOK_SPLIT channels: one book page per converter (channels
+                          without one grouped by kind); book.html is then the book's index
     data/spec.json        the JSON contract (the same document as ``check --format json``)
     assets/               site.css, site.js and plotly.min.js (copied once from the plotly package)
     .specfold-site        marker: this folder was made by specfold and may be replaced
@@ -44,16 +46,20 @@ pool in coarse chunks while the parent renders the shared pages.
 
 from __future__ import annotations
 
+import copyreg
 import hashlib
 import importlib.resources
+import io
 import json
 import multiprocessing
 import os
+import pickle
 import shutil
 import tempfile
 from collections.abc import Callable, Iterator
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from pathlib import Path
+from types import MappingProxyType
 from typing import Any
 
 import jinja2
@@ -79,6 +85,9 @@ STATIC = ("site.css", "site.js")
 PLOTLY_ASSET = "assets/plotly.min.js"
 MANIFEST = ".specfold-cache/manifest.json"
 MANIFEST_FORMAT = 1
+RESULTS = ".specfold-cache/channels.pickle"
+"""Every channel as loaded and analysed (budget left out), keyed by its file: a rebuild neither
+parses nor analyses a file whose key (tool, system.toml, the file) is unchanged."""
 POOL_MIN_PAGES = 300
 """Fewer channel pages than this to render are rendered in-process (a pool would not pay off)."""
 POOL_CHUNK = 100
@@ -125,7 +134,8 @@ def plotly_bundle() -> Path:
 def _context(analysis: SystemAnalysis, findings: list[Finding]) -> render.Context:
     # Proposals only for channels with findings a rate or filter can affect: cheap on a healthy spec.
     flagged = flagged_channels(analysis.spec, findings)
-    proposals = {p.channel_id: p for p in propose(analysis.spec, flagged)} if flagged else {}
+    known = {r.channel.id: r for r in analysis.channels}
+    proposals = {p.channel_id: p for p in propose(analysis.spec, flagged, known=known)} if flagged else {}
     return render.Context(analysis, findings, render.channel_paths([r.channel.id for r in analysis.channels]),
                           proposals=proposals)
 
@@ -133,9 +143,12 @@ def _context(analysis: SystemAnalysis, findings: list[Finding]) -> render.Contex
 def pages(analysis: SystemAnalysis, findings: list[Finding], env: jinja2.Environment) -> Iterator[tuple[str, str]]:
     """Every page as (relative path, text), lazily, so a large system never sits in memory."""
     ctx = _context(analysis, findings)
-    yield from shared_pages(ctx, env)
+    sections = render.book_sections(analysis)
+    yield from shared_pages(ctx, env, sections)
     for result in analysis.channels:
         yield ctx.paths[result.channel.id], channel_html(result, ctx, env)
+    for section in sections:
+        yield section.path, section_html(section, ctx, env)
 
 
 def channel_html(result: ChannelResult, ctx: render.Context, env: jinja2.Environment) -> str:
@@ -143,8 +156,17 @@ def channel_html(result: ChannelResult, ctx: render.Context, env: jinja2.Environ
     return env.get_template("channel.html").render(page=view, frame=view.frame)
 
 
-def shared_pages(ctx: render.Context, env: jinja2.Environment) -> Iterator[tuple[str, str]]:
-    """The five pages that span all channels: rendered again on every build that changes anything."""
+def section_html(section: render.BookSection, ctx: render.Context, env: jinja2.Environment) -> str:
+    view = render.book_section_page(ctx, section)
+    return env.get_template("book.html").render(page=view, frame=view.frame)
+
+
+def shared_pages(ctx: render.Context, env: jinja2.Environment,
+                 sections: tuple[render.BookSection, ...] = ()) -> Iterator[tuple[str, str]]:
+    """The five pages that span all channels: rendered again on every build that changes anything.
+
+    With ``sections`` (a split book) ``book.html`` is the book's index; the sections are rendered
+    like channel pages."""
     rules = all_rules()
 
     def page(template: str, view: Any) -> str:
@@ -154,11 +176,14 @@ def shared_pages(ctx: render.Context, env: jinja2.Environment) -> Iterator[tuple
     yield "budgets.html", page("budgets.html", render.budgets_page(ctx))
     yield "findings.html", page("findings.html", render.findings_page(ctx, rules))
     yield "rules.html", page("rules.html", render.rules_page(ctx, rules))
-    yield "book.html", page("book.html", render.book_page(ctx))
+    if sections:
+        yield "book.html", page("book_index.html", render.book_index_page(ctx, sections))
+    else:
+        yield "book.html", page("book.html", render.book_page(ctx))
 
 
 def page_count(analysis: SystemAnalysis) -> int:
-    return 5 + len(analysis.channels)
+    return 5 + len(analysis.channels) + len(render.book_sections(analysis))
 
 
 # ---------------------------------------------------------------------------------------------
@@ -346,6 +371,41 @@ class Reuse:
         return _digest(self.tool, self.inputs.system, ch.source.file, file_key, rel, ctx.status[ch.id],
                        repr(result.budget), repr(linked), repr(ctx.proposals.get(ch.id)))
 
+    def section_key(self, section: render.BookSection, channel_keys: list[str | None]) -> str | None:
+        """A book section's key: its path, its label and the keys of its channels' pages (which
+        cover everything a sheet shows)."""
+        members = [channel_keys[i] for i in section.channels]
+        if any(k is None for k in members):
+            return None
+        return _digest(self.tool, "book section", section.path, section.label, *(k or "" for k in members))
+
+    def result_key(self, rel: str) -> str | None:
+        """Key of one channel file's loaded channel and per-channel analysis."""
+        if self.inputs is None or rel not in self.inputs.files:
+            return None
+        return _digest(self.tool, "channel result", self.inputs.system, rel, self.inputs.files[rel])
+
+    def known_results(self, digest: object) -> dict[str, ChannelResult]:
+        """The cached results of the current site whose keys still hold (file path -> result)."""
+        path = self.old_site / RESULTS
+        if self.previous is None or not isinstance(digest, str) or not _regular_file(path):
+            return {}
+        try:
+            data = path.read_bytes()
+            if hashlib.sha256(data).hexdigest() != digest:
+                return {}  # not the file this site's manifest wrote
+            entries = pickle.loads(data)  # written by this tool into its own site, checked above
+        except Exception:  # a damaged cache only means parsing again
+            return {}
+        if not isinstance(entries, dict):
+            return {}
+        out: dict[str, ChannelResult] = {}
+        for rel, entry in entries.items():
+            if (isinstance(entry, tuple) and len(entry) == 2 and entry[0] == self.result_key(rel)
+                    and isinstance(entry[1], ChannelResult)):
+                out[rel] = entry[1]
+        return out
+
     def take(self, rel: str, key: str | None, tmp: Path) -> bool:
         """Link (or copy) an unchanged page from the current site; False when it must be rendered."""
         if key is None or self.previous is None or self.previous["pages"].get(rel) != key:
@@ -367,20 +427,53 @@ def _carry(source: Path, target: Path) -> bool:
     return True
 
 
+def _proxy(items: dict[str, Any]) -> MappingProxyType[str, Any]:
+    return MappingProxyType(items)
+
+
+def _dump_results(reuse: Reuse, analysis: SystemAnalysis) -> bytes:
+    entries: dict[str, tuple[str, ChannelResult]] = {}
+    for r in analysis.channels:
+        key = reuse.result_key(r.channel.source.file)
+        if key is not None:
+            entries[r.channel.source.file] = (key, replace(r, budget=None))
+    buffer = io.BytesIO()
+    pickler = pickle.Pickler(buffer, protocol=pickle.HIGHEST_PROTOCOL)
+    table = copyreg.dispatch_table.copy()
+    table[MappingProxyType] = lambda m: (_proxy, (dict(m),))
+    pickler.dispatch_table = table
+    pickler.dump(entries)
+    return buffer.getvalue()
+
+
 # ---------------------------------------------------------------------------------------------
 # Filling the temporary folder
 # ---------------------------------------------------------------------------------------------
 
-_JOB: tuple[Path, render.Context, jinja2.Environment] | None = None
+_JOB: tuple[Path, render.Context, jinja2.Environment, tuple[render.BookSection, ...]] | None = None
 """The state a forked worker renders from (inherited, never pickled)."""
+
+
+def _render_one(i: int, tmp: Path, ctx: render.Context, env: jinja2.Environment,
+                sections: tuple[render.BookSection, ...]) -> str:
+    """Render item ``i``: a channel page below the channel count, a book section above it."""
+    n = len(ctx.analysis.channels)
+    if i < n:
+        result = ctx.analysis.channels[i]
+        rel = ctx.paths[result.channel.id]
+        _write(tmp, rel, channel_html(result, ctx, env))
+    else:
+        section = sections[i - n]
+        rel = section.path
+        _write(tmp, rel, section_html(section, ctx, env))
+    return rel
 
 
 def _render_chunk(indices: list[int]) -> int:
     assert _JOB is not None
-    tmp, ctx, env = _JOB
+    tmp, ctx, env, sections = _JOB
     for i in indices:
-        result = ctx.analysis.channels[i]
-        _write(tmp, ctx.paths[result.channel.id], channel_html(result, ctx, env))
+        _render_one(i, tmp, ctx, env, sections)
     return len(indices)
 
 
@@ -412,11 +505,14 @@ def _fill(tmp: Path, analysis: SystemAnalysis, findings: list[Finding], env: jin
         if progress is not None:
             progress(done, total, rel)
 
+    sections = render.book_sections(analysis)
     keys: dict[str, str] = {}
     todo: list[int] = []
+    channel_keys: list[str | None] = []
     for i, result in enumerate(analysis.channels):
         rel = ctx.paths[result.channel.id]
         key = reuse.page_key(result, ctx, rel) if reuse is not None else None
+        channel_keys.append(key)
         if key is not None:
             keys[rel] = key
         if reuse is not None and reuse.take(rel, key, tmp):
@@ -424,16 +520,27 @@ def _fill(tmp: Path, analysis: SystemAnalysis, findings: list[Finding], env: jin
             tick(1, rel)
         else:
             todo.append(i)
+    for j, section in enumerate(sections):
+        key = reuse.section_key(section, channel_keys) if reuse is not None else None
+        if key is not None:
+            keys[section.path] = key
+        if reuse is not None and reuse.take(section.path, key, tmp):
+            reuse.reused += 1
+            tick(1, section.path)
+        else:
+            todo.append(len(analysis.channels) + j)
     (tmp / "channels").mkdir(exist_ok=True)
+    if sections:
+        (tmp / "book").mkdir(exist_ok=True)
     workers = _pool_size(len(todo))
     if workers:
         chunks = [todo[k:k + POOL_CHUNK] for k in range(0, len(todo), POOL_CHUNK)]
-        _JOB = (tmp, ctx, env)
+        _JOB = (tmp, ctx, env, sections)
         try:
             with multiprocessing.get_context("fork").Pool(workers) as pool:
                 pending = pool.map_async(_render_chunk, chunks, chunksize=1)
                 _write(tmp, "data/spec.json", to_json(analysis, findings))  # the parent works meanwhile
-                for rel, text in shared_pages(ctx, env):
+                for rel, text in shared_pages(ctx, env, sections):
                     _write(tmp, rel, text)
                     tick(1, rel)
                 for n in pending.get():
@@ -442,14 +549,11 @@ def _fill(tmp: Path, analysis: SystemAnalysis, findings: list[Finding], env: jin
             _JOB = None
     else:
         _write(tmp, "data/spec.json", to_json(analysis, findings))
-        for rel, text in shared_pages(ctx, env):
+        for rel, text in shared_pages(ctx, env, sections):
             _write(tmp, rel, text)
             tick(1, rel)
         for i in todo:
-            result = analysis.channels[i]
-            rel = ctx.paths[result.channel.id]
-            _write(tmp, rel, channel_html(result, ctx, env))
-            tick(1, rel)
+            tick(1, _render_one(i, tmp, ctx, env, sections))
     _write(tmp, MARKER, MARKER_TEXT)
     return done, keys
 
@@ -489,7 +593,10 @@ def write_site(analysis: SystemAnalysis, findings: list[Finding], output: Path, 
         (tmp / BUILDING_MARKER).write_text(f"{os.getpid()}\n", encoding="utf-8")
         count, keys = _fill(tmp, analysis, findings, env, progress, reuse)
         if reuse is not None and reuse.inputs is not None:
+            results = _dump_results(reuse, analysis)
+            _write(tmp, RESULTS, results)
             manifest = {
+                "results": hashlib.sha256(results).hexdigest(),
                 "format": MANIFEST_FORMAT,
                 "tool": reuse.tool,
                 "inputs": reuse.inputs.tree,
@@ -557,7 +664,9 @@ def build(specs: Path | str, output: Path | str, progress: Progress | None = Non
             findings = [Finding(r[0], r[1], tuple(r[2]), r[3], r[4], r[5], r[6], r[7]) for r in previous["findings"]]
             return BuildSummary(out_path, int(previous["count"]), int(previous["channels"]), findings)
         reuse = Reuse(tool, inputs, previous, out_path.resolve())
-    analysis = analyze(load_spec(specs_path))
+    known = reuse.known_results(reuse.previous.get("results")) if reuse is not None and reuse.previous else {}
+    spec = load_spec(specs_path, known={rel: r.channel for rel, r in known.items()})
+    analysis = analyze(spec, known={r.channel.id: r for r in known.values()})
     findings = run_rules(analysis)
     count = write_site(analysis, findings, out_path, specs_path, progress, reuse)
     return BuildSummary(out_path, count, len(analysis.channels), findings)

@@ -9,8 +9,11 @@ from __future__ import annotations
 
 import shutil
 from pathlib import Path
+from typing import Any
 
-from generator import site
+import pytest
+
+from generator import load, render, site
 from generator.analysis import analyze
 from generator.load import load_spec
 from generator.rules import run_rules
@@ -105,3 +108,79 @@ def test_synthetic_trees_load_and_check_without_errors(tmp_path: Path) -> None:
     assert len(analysis.spec.system.converters) == 9 and len(analysis.spec.system.links) == 3
     errors = [f for f in run_rules(analysis) if f.severity == "error" and not f.waived]
     assert errors == []
+
+
+def _split_small_books(monkeypatch: pytest.MonkeyPatch) -> None:
+    # the demo's 17 channels stand in for a system large enough to get its book split
+    monkeypatch.setattr(render, "BOOK_SPLIT", 5)
+
+
+def test_a_split_book_reuses_every_section_but_the_edited_one(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    _split_small_books(monkeypatch)
+    specs = tmp_path / "specs"
+    shutil.copytree(DEMO, specs)
+    out = tmp_path / "site"
+    site.build(specs, out)
+    sections = sorted(p.name for p in (out / "book").iterdir())
+    # one page per converter of the demo, then the kinds with channels that have no converter
+    assert sections[:3] == ["conv-adc-ds.html", "conv-adc-sar.html", "conv-dac-out.html"]
+    index = (out / "book.html").read_text(encoding="utf-8")
+    assert all(f'href="book/{name}"' in index for name in sections)
+    sar = (out / "book" / "conv-adc-sar.html").read_text(encoding="utf-8")
+    assert 'id="sheet-STR-BLD-1"' in sar and 'id="sheet-TQ-SHAFT"' not in sar
+    assert 'href="../book.html"' in sar and 'href="../assets/site.css"' in sar
+    before = {p.name: p.stat().st_ino for p in (out / "book").iterdir()}
+    edited = specs / "channels" / "STR-BLD-1.md"
+    edited.write_text(edited.read_text(encoding="utf-8").replace("bending strain", "strain, re-balanced"),
+                      encoding="utf-8")
+    site.build(specs, out)
+    after = {p.name: p.stat().st_ino for p in (out / "book").iterdir()}
+    assert {n for n in after if after[n] != before[n]} == {"conv-adc-sar.html"}
+    assert "re-balanced" in (out / "book" / "conv-adc-sar.html").read_text(encoding="utf-8")
+    assert _pages(out) == _fresh(specs, tmp_path / "fresh")
+
+
+def test_a_split_book_follows_system_and_cross_channel_changes(tmp_path: Path,
+                                                               monkeypatch: pytest.MonkeyPatch) -> None:
+    _split_small_books(monkeypatch)
+    specs = tmp_path / "specs"
+    shutil.copytree(DEMO, specs)
+    out = tmp_path / "site"
+    site.build(specs, out)
+    member = specs / "channels" / "STR-BLD-2.md"
+    member.write_text(member.read_text(encoding="utf-8").replace('match = "blade-roots"\n', ""), encoding="utf-8")
+    site.build(specs, out)
+    assert _pages(out) == _fresh(specs, tmp_path / "fresh1")
+    system = specs / "system.toml"
+    # a converter setting feeds the per-channel analysis of every channel on it: cached results must go
+    system.write_text(system.read_text(encoding="utf-8").replace('jitter = "50 ps"', 'jitter = "400 ps"'),
+                      encoding="utf-8")
+    site.build(specs, out)
+    assert _pages(out) == _fresh(specs, tmp_path / "fresh2")
+
+
+def test_unchanged_files_are_not_parsed_again(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    specs = tmp_path / "specs"
+    shutil.copytree(DEMO, specs)
+    out = tmp_path / "site"
+    site.build(specs, out)
+    parsed: list[str] = []
+    real = load._load_channel
+
+    def counting(path: Path, rel: str, *args: Any) -> Any:
+        parsed.append(rel)
+        return real(path, rel, *args)
+
+    monkeypatch.setattr(load, "_load_channel", counting)
+    edited = specs / "channels" / "HYD-01.md"
+    edited.write_text(edited.read_text(encoding="utf-8") + "\nAccumulator pre-charge checked.\n", encoding="utf-8")
+    site.build(specs, out)
+    assert parsed == ["channels/HYD-01.md"]
+    assert _pages(out) == _fresh(specs, tmp_path / "fresh")
+    # a damaged cache file is never unpickled: every file is parsed again and the site is still right
+    (out / site.RESULTS).write_bytes(b"not a pickle")
+    parsed.clear()
+    edited.write_text(edited.read_text(encoding="utf-8") + "\nChecked again.\n", encoding="utf-8")
+    site.build(specs, out)
+    assert len(parsed) == 17
+    assert _pages(out) == _fresh(specs, tmp_path / "fresh2")

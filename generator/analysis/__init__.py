@@ -17,7 +17,7 @@ pages all read that registry.
 from __future__ import annotations
 
 from collections.abc import Mapping
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from typing import Any
 
 from ..model import Channel, Spec
@@ -108,7 +108,18 @@ def analyze_channel(channel: Channel, spec: Spec, budgets: Budgets | None = None
     )
 
 
-def analyze(spec: Spec) -> SystemAnalysis:
-    """Analyse every channel of a spec, then the budgets of what they share."""
+def analyze(spec: Spec, known: Mapping[str, ChannelResult] | None = None) -> SystemAnalysis:
+    """Analyse every channel of a spec, then the budgets of what they share.
+
+    ``known`` maps channel ids to results computed earlier (the build cache); one is reused only
+    for the very channel object it was computed from, under the same system (the caller's key
+    guarantees that), and gets this run's budget, since budgets span channels."""
     budgets = analyze_budgets(spec)
-    return SystemAnalysis(spec, tuple(analyze_channel(ch, spec, budgets) for ch in spec.channels), budgets)
+    results = []
+    for ch in spec.channels:
+        old = known.get(ch.id) if known is not None else None
+        if old is not None and old.channel is ch:
+            results.append(replace(old, budget=budgets.channels.get(ch.id)))
+        else:
+            results.append(analyze_channel(ch, spec, budgets))
+    return SystemAnalysis(spec, tuple(results), budgets)
