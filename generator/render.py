@@ -322,6 +322,7 @@ class Context:
     by_channel: dict[str, list[Finding]] = field(default_factory=dict)
     status: dict[str, str] = field(default_factory=dict)
     proposals: Mapping[str, Proposal] = field(default_factory=dict)  # channel id -> proposal, flagged channels
+    proposals_deferred: int = 0  # flagged channels left to `specfold propose` (too many to design in a build)
 
     def __post_init__(self) -> None:
         for f in self.findings:
@@ -644,6 +645,8 @@ def totals(ctx: Context) -> Totals:
     if ctx.proposals:
         found = sum(1 for p in ctx.proposals.values() if p.design is not None)
         extra.append(("proposals", str(found)))
+    elif ctx.proposals_deferred:
+        extra.append(("flagged for specfold propose", str(ctx.proposals_deferred)))
     return Totals(int(t["channels"]), by_kind, tuple((k, c[k]) for k in (*SEVERITIES, "waived")), tuple(extra))
 
 

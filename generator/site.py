@@ -131,13 +131,21 @@ def plotly_bundle() -> Path:
 # ---------------------------------------------------------------------------------------------
 
 
+SITE_PROPOSALS_LIMIT = 50
+"""Most flagged channels the site designs proposals for.  Each proposal searches rates and filters
+and re-checks the shared hardware, which at thousands of flagged channels would cost the build
+minutes; past the limit the overview says how many are flagged and ``specfold propose`` does it."""
+
+
 def _context(analysis: SystemAnalysis, findings: list[Finding]) -> render.Context:
     # Proposals only for channels with findings a rate or filter can affect: cheap on a healthy spec.
     flagged = flagged_channels(analysis.spec, findings)
+    paths = render.channel_paths([r.channel.id for r in analysis.channels])
+    if len(flagged) > SITE_PROPOSALS_LIMIT:
+        return render.Context(analysis, findings, paths, proposals_deferred=len(flagged))
     known = {r.channel.id: r for r in analysis.channels}
     proposals = {p.channel_id: p for p in propose(analysis.spec, flagged, known=known)} if flagged else {}
-    return render.Context(analysis, findings, render.channel_paths([r.channel.id for r in analysis.channels]),
-                          proposals=proposals)
+    return render.Context(analysis, findings, paths, proposals=proposals)
 
 
 def pages(analysis: SystemAnalysis, findings: list[Finding], env: jinja2.Environment) -> Iterator[tuple[str, str]]:

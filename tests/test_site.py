@@ -383,3 +383,20 @@ def test_engineering_unit_figures_are_not_converted_twice() -> None:
     result = analyze(load_spec(DEMO)).result("TACHO-HSS")
     text = format_figure("lsb_units", result.figures["lsb_units"], result.channel)
     assert text == "0.06104 rpm"
+
+
+def test_past_the_limit_proposals_are_left_to_the_command(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    # The demo flags one channel (TACHO-HSS, band-edge-droop); with the limit at 0 the build designs
+    # nothing and says how many channels `specfold propose` would look at.
+    from generator import site as site_module
+
+    monkeypatch.setattr(site_module, "SITE_PROPOSALS_LIMIT", 0)
+    site_module.build(DEMO, tmp_path / "out", incremental=False)
+    overview = (tmp_path / "out" / "index.html").read_text(encoding="utf-8")
+    assert "flagged for specfold propose" in overview
+    tacho = next((tmp_path / "out" / "channels").glob("TACHO-HSS*.html")).read_text(encoding="utf-8")
+    assert 'id="proposal"' not in tacho
+    monkeypatch.setattr(site_module, "SITE_PROPOSALS_LIMIT", 50)
+    site_module.build(DEMO, tmp_path / "out2", incremental=False)
+    tacho = next((tmp_path / "out2" / "channels").glob("TACHO-HSS*.html")).read_text(encoding="utf-8")
+    assert 'id="proposal"' in tacho
