@@ -28,7 +28,7 @@ from .model import Channel
 from .propose import Proposal, file_edits
 from .quantities import format_in_unit, format_percent, format_quantity
 from .report import counts
-from .rules import SEVERITIES, SEVERITY_RANK, Finding, Rule, worst_status
+from .rules import SEVERITIES, SEVERITY_RANK, Finding, Rule, by_channel, worst_status
 
 CAUTION_RULE = "caution"
 """Findings of this rule are shown in the channel's caution box rather than among its findings."""
@@ -325,9 +325,7 @@ class Context:
     proposals_deferred: int = 0  # flagged channels left to `specfold propose` (too many to design in a build)
 
     def __post_init__(self) -> None:
-        for f in self.findings:
-            for cid in f.channels:
-                self.by_channel.setdefault(cid, []).append(f)
+        self.by_channel.update(by_channel(self.findings))
         for r in self.analysis.channels:
             self.status[r.channel.id] = worst_status(self.by_channel.get(r.channel.id, ()))
 

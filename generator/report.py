@@ -23,7 +23,7 @@ from typing import Any
 
 from . import __version__
 from .analysis import SystemAnalysis
-from .rules import SEVERITY_RANK, Finding, all_rules, worst_status
+from .rules import SEVERITY_RANK, Finding, all_rules, by_channel, worst_status
 
 JSON_FORMAT = 1
 
@@ -61,18 +61,10 @@ def _budget_of(budgets: Iterable[Any], item_id: str) -> dict[str, Any]:
     return {}
 
 
-def _by_channel(findings: Iterable[Finding]) -> dict[str, list[Finding]]:
-    out: dict[str, list[Finding]] = {}
-    for f in findings:
-        for cid in f.channels:
-            out.setdefault(cid, []).append(f)
-    return out
-
-
 def spec_document(analysis: SystemAnalysis, findings: list[Finding]) -> dict[str, Any]:
     """The JSON contract shared by ``check --format json`` and the site's data/spec.json."""
     system = analysis.spec.system
-    mine = _by_channel(findings)
+    mine = by_channel(findings)
     doc: dict[str, Any] = _clean({
         "format": JSON_FORMAT,
         "system": {

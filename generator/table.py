@@ -42,7 +42,7 @@ from .analysis import FIGURES, SystemAnalysis
 from .errors import SpecError, SpecErrors
 from .load import CHANNEL_DIR, convert, parse_toml
 from .quantities import Unit, parse_quantity, parse_unit
-from .rules import Finding, channel_status
+from .rules import Finding, by_channel, worst_status
 from .scaffold import check_id, check_texts, existing_channel, render_channel
 from .schema import Key
 
@@ -690,11 +690,12 @@ def export_table(analysis: SystemAnalysis, findings: list[Finding]) -> tuple[lis
     used: set[str] = set()
     wanted = [k for k in EXPORT_FIGURES if k in FIGURES]
     present: set[str] = set()
+    mine = by_channel(findings)
     for r in analysis.channels:
         ch = r.channel
         cells: dict[str, Any] = {"id": ch.id, **flatten(tomllib.loads(ch.header), ch.notes)}
         used.update(cells)
-        cells["status"] = channel_status(findings, ch.id)
+        cells["status"] = worst_status(mine.get(ch.id, ()))
         figures = r.figures
         for k in wanted:
             value = figures.get(k)

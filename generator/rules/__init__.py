@@ -187,6 +187,15 @@ def channel_status(findings: Iterable[Finding], channel_id: str) -> str:
     return worst_status(f for f in findings if channel_id in f.channels)
 
 
+def by_channel(findings: Iterable[Finding]) -> dict[str, list[Finding]]:
+    """Findings grouped by the channels they name, each channel's in the given order."""
+    out: dict[str, list[Finding]] = {}
+    for f in findings:
+        for cid in f.channels:
+            out.setdefault(cid, []).append(f)
+    return out
+
+
 def worst_status(findings: Iterable[Finding]) -> str:
     """ok | warning | error: the worst unwaived finding (info does not count)."""
     worst = "ok"
