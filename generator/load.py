@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import difflib
 import math
+import os
 import re
 import tomllib
 from collections.abc import Callable, Iterator, Mapping
@@ -747,11 +748,26 @@ def _resolve_conversion(src: _Source, raw: dict[str, Any], kind: str, system: Sy
 
 
 def channel_files(root: Path) -> list[Path]:
-    """Every channel file under ``root/channels``, in a stable order."""
-    folder = root / CHANNEL_DIR
-    if not folder.is_dir():
-        return []
-    return sorted(p for p in folder.rglob("*.md") if p.is_file() and not p.is_symlink())
+    """Every channel file under ``root/channels``, in a stable order.
+
+    Regular files named ``*.md`` only: symbolic links (to files or folders) are never followed.
+    One ``scandir`` per folder, whose entries already know their type: a tree of 10,000 files
+    is listed without a ``stat`` per file.
+    """
+    found: list[Path] = []
+    stack = [root / CHANNEL_DIR]
+    while stack:
+        folder = stack.pop()
+        try:
+            with os.scandir(folder) as entries:
+                for entry in entries:
+                    if entry.is_dir(follow_symlinks=False):
+                        stack.append(folder / entry.name)
+                    elif entry.name.endswith(".md") and entry.is_file(follow_symlinks=False):
+                        found.append(folder / entry.name)
+        except OSError:
+            continue  # no channels folder (or an unreadable one): nothing in it is listed
+    return sorted(found)
 
 
 def load_system(root: Path | str) -> System:
@@ -764,17 +780,18 @@ def load_system(root: Path | str) -> System:
 
 
 def load_spec(root: Path | str, on_file: Callable[[], None] | None = None,
-              known: Mapping[str, Channel] | None = None) -> Spec:
+              known: Mapping[str, Channel] | None = None, known_system: System | None = None) -> Spec:
     """Load a whole spec tree; raise :class:`SpecErrors` listing every problem found.
 
     ``known`` maps a channel file's path (relative to ``root``) to the channel already loaded from
     that very text under the same system.toml (the build cache); those files are not parsed again.
+    ``known_system`` is the system already loaded from that very system.toml (the build cache).
     """
     root = Path(root)
     problems: list[SpecError] = []
     if not root.is_dir():
         raise SpecErrors([SpecError(f"'{root}' is not a folder of specs (expected system.toml and channels/)")])
-    system = _load_system(root, problems)
+    system = known_system if known_system is not None else _load_system(root, problems)
     files = channel_files(root)
     if len(files) > MAX_CHANNELS:
         raise SpecErrors([SpecError(f"{len(files):,} channel files; a spec tree is limited to "

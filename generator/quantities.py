@@ -48,6 +48,7 @@ import math
 import re
 from dataclasses import dataclass
 from decimal import Decimal
+from functools import lru_cache
 
 from generator.errors import SpecError
 
@@ -825,6 +826,14 @@ def _display_parts(dim: str) -> tuple[str, int, int, int]:
 
 
 def format_quantity(value: float, dim: str, digits: int = 4) -> str:
+    """:func:`_format_quantity`, remembered: a large system shows the same few rates, bits and
+    levels thousands of times.  Zero bypasses the memo (0.0 and -0.0 are equal keys)."""
+    if value == 0.0 or not math.isfinite(value):
+        return _format_quantity(value, dim, digits)
+    return _format_quantity_memo(value, dim, digits)
+
+
+def _format_quantity(value: float, dim: str, digits: int = 4) -> str:
     """SI ``value`` of dimension ``dim`` in engineering notation: 20000, "Hz" -> ``"20 kHz"``.
 
     The prefix is a power of 1000 leaving a mantissa in [1, 1000); the mantissa has ``digits``
@@ -842,6 +851,9 @@ def format_quantity(value: float, dim: str, digits: int = 4) -> str:
     if not symbol:
         return number
     return f"{number} {_PREFIX_BY_EXP[e3]}{symbol}"
+
+
+_format_quantity_memo = lru_cache(maxsize=65536, typed=True)(_format_quantity)
 
 
 def format_in_unit(value_si: float, unit: Unit, digits: int = 4) -> str:

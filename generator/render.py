@@ -613,7 +613,7 @@ def channel_row(result: ChannelResult, ctx: Context, root: str = "") -> ChannelR
     ch = result.channel
     conv = ch.conversion
     band, band_sort = _band(ch)
-    rate = result.figures.get("data_rate_bps")
+    rate = result.budget.data_rate_bps if result.budget is not None else None  # the data_rate_bps figure
     return ChannelRow(
         id=ch.id,
         href=root + ctx.paths[ch.id],

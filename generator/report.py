@@ -19,10 +19,11 @@ import json
 import math
 import xml.etree.ElementTree as ET
 from collections.abc import Iterable
+from functools import partial
 from typing import Any
 
 from . import __version__
-from .analysis import SystemAnalysis
+from .analysis import ChannelResult, SystemAnalysis
 from .rules import SEVERITY_RANK, Finding, all_rules, by_channel, worst_status
 
 JSON_FORMAT = 1
@@ -61,30 +62,34 @@ def _budget_of(budgets: Iterable[Any], item_id: str) -> dict[str, Any]:
     return {}
 
 
+def _system_document(analysis: SystemAnalysis) -> dict[str, Any]:
+    system = analysis.spec.system
+    return {
+        "name": system.name,
+        "revision": system.revision,
+        "totals": analysis.totals(),
+        "converters": [
+            {"id": c.id, "type": c.type, "architecture": c.architecture, "bits": c.bits,
+             "sampling": c.sampling, "max_rate_hz": c.max_rate, "clock": c.clock, "link": c.link,
+             **_budget_of(analysis.budgets.converters, c.id)}
+            for c in system.converters.values()
+        ],
+        "clocks": [b.as_dict() for b in analysis.budgets.clocks],
+        "links": [{"id": lk.id, "capacity_bps": lk.capacity_bps, "overhead": lk.overhead,
+                   "headroom": lk.headroom, **_budget_of(analysis.budgets.links, lk.id)}
+                  for lk in system.links.values()],
+        "stores": [{"id": s.id, "capacity_bytes": s.capacity_bytes, **_budget_of(analysis.budgets.stores, s.id)}
+                   for s in system.stores.values()],
+        "groups": [b.as_dict() for b in analysis.budgets.groups],
+    }
+
+
 def spec_document(analysis: SystemAnalysis, findings: list[Finding]) -> dict[str, Any]:
     """The JSON contract shared by ``check --format json`` and the site's data/spec.json."""
-    system = analysis.spec.system
     mine = by_channel(findings)
     doc: dict[str, Any] = _clean({
         "format": JSON_FORMAT,
-        "system": {
-            "name": system.name,
-            "revision": system.revision,
-            "totals": analysis.totals(),
-            "converters": [
-                {"id": c.id, "type": c.type, "architecture": c.architecture, "bits": c.bits,
-                 "sampling": c.sampling, "max_rate_hz": c.max_rate, "clock": c.clock, "link": c.link,
-                 **_budget_of(analysis.budgets.converters, c.id)}
-                for c in system.converters.values()
-            ],
-            "clocks": [b.as_dict() for b in analysis.budgets.clocks],
-            "links": [{"id": lk.id, "capacity_bps": lk.capacity_bps, "overhead": lk.overhead,
-                       "headroom": lk.headroom, **_budget_of(analysis.budgets.links, lk.id)}
-                      for lk in system.links.values()],
-            "stores": [{"id": s.id, "capacity_bytes": s.capacity_bytes, **_budget_of(analysis.budgets.stores, s.id)}
-                       for s in system.stores.values()],
-            "groups": [b.as_dict() for b in analysis.budgets.groups],
-        },
+        "system": _system_document(analysis),
         "channels": [
             {
                 "id": r.channel.id,
@@ -100,10 +105,62 @@ def spec_document(analysis: SystemAnalysis, findings: list[Finding]) -> dict[str
     return doc
 
 
-def to_json(analysis: SystemAnalysis, findings: list[Finding], ascii_only: bool = False) -> str:
-    """Deterministic JSON text of :func:`spec_document`; ``ascii_only`` writes µ, ± and the like as \\u escapes."""
-    doc = spec_document(analysis, findings)
-    return json.dumps(doc, indent=2, ensure_ascii=ascii_only, allow_nan=False) + "\n"
+class _Encoded(str):
+    """JSON text already encoded: :func:`_layout` writes it as it is."""
+
+
+def _compact(value: Any, ascii_only: bool) -> str:
+    return json.dumps(_clean(value), ensure_ascii=ascii_only, allow_nan=False)
+
+
+def _layout(value: Any, level: int, ascii_only: bool) -> str:
+    """JSON text with the document's structure on its own lines and every list item on one line.
+
+    Objects down to the second level open one key per line (2-space indent); a list puts each
+    item on a line of its own, written compactly; everything else is compact.  One channel, one
+    finding or one converter is then one line: a change to it is one line of a diff, and the
+    encoder's C fast path does the work (an indented dump goes through its slow pure-Python path).
+    """
+    if isinstance(value, _Encoded):
+        return value
+    pad, end = "  " * (level + 1), "  " * level
+    if isinstance(value, dict) and value and level < 2:
+        items = (f"{pad}{json.dumps(str(k), ensure_ascii=ascii_only)}: {_layout(v, level + 1, ascii_only)}"
+                 for k, v in value.items())
+        return "{\n" + ",\n".join(items) + "\n" + end + "}"
+    if isinstance(value, list | tuple) and value:
+        items = (pad + (v if isinstance(v, _Encoded) else _compact(v, ascii_only)) for v in value)
+        return "[\n" + ",\n".join(items) + "\n" + end + "]"
+    return _compact(value, ascii_only)
+
+
+def to_json(analysis: SystemAnalysis, findings: list[Finding], ascii_only: bool = False,
+            memo: dict[str, str] | None = None) -> str:
+    """Deterministic JSON text of :func:`spec_document`; ``ascii_only`` writes µ, ± and the like as \\u escapes.
+
+    ``memo`` (used only without ``ascii_only``) maps a channel id to its figures as JSON text: an
+    entry present is written as it is, a missing one is encoded and added.  A build cache keeps
+    it, so that a rebuild encodes only the channels it analysed again.
+    """
+    memo = memo if memo is not None and not ascii_only else {}
+    mine = by_channel(findings)
+    text = partial(json.dumps, ensure_ascii=ascii_only)
+
+    def channel(r: ChannelResult) -> _Encoded:
+        ch = r.channel
+        figures = memo.get(ch.id)
+        if figures is None:
+            figures = memo[ch.id] = _compact(r.figures, ascii_only)
+        return _Encoded(f'{{"id": {text(ch.id)}, "kind": {text(ch.kind)}, "file": {text(ch.source.file)}, '
+                        f'"status": {text(worst_status(mine.get(ch.id, ())))}, "figures": {figures}}}')
+
+    doc = {
+        "format": JSON_FORMAT,
+        "system": _system_document(analysis),
+        "channels": [channel(r) for r in analysis.channels],
+        "findings": [_Encoded(json.dumps(finding_dict(f), ensure_ascii=ascii_only)) for f in findings],
+    }
+    return _layout(doc, 0, ascii_only) + "\n"
 
 
 def counts(findings: Iterable[Finding]) -> dict[str, int]:

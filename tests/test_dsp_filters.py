@@ -353,3 +353,35 @@ def test_extreme_grid_is_finite_and_silent() -> None:
                 for as_ in (1.0, 98.0, 200.0):
                     d = flt.least_order(family, fp, fs, 0.01, as_)
                     assert d is None or (1 <= d.order <= 20 and math.isfinite(d.corner_hz) and d.corner_hz > 0)
+
+
+def test_remembered_designs_are_what_scipy_designs() -> None:
+    # The build cache keeps prototypes and least orders between processes.  Reference: scipy.signal
+    # designing the same prototype afresh, and buttord's order for the same mask.
+    flt.design("butterworth", 5, 1000.0)
+    flt.least_order("chebyshev1", 1000.0, 2500.0, 0.5, 60.0)
+    kept = flt.known_designs()
+    saved_p, saved_o = dict(flt._PROTOTYPES), dict(flt._LEAST_ORDERS)
+    try:
+        flt._PROTOTYPES.clear()
+        flt._LEAST_ORDERS.clear()
+        assert flt.remember_designs(kept) == len(kept["prototypes"]) + len(kept["least_orders"])
+        z, p, k = flt._prototype("butterworth", 5, 0.1, 80.0)
+        z_ref, p_ref, k_ref = signal.butter(5, 1.0, analog=True, output="zpk")
+        assert_allclose(np.sort_complex(p), np.sort_complex(p_ref), rtol=1e-12)
+        assert z.size == len(z_ref) == 0 and k == pytest.approx(k_ref, rel=1e-12)
+        n_ref, _ = signal.cheb1ord(1.0, 2.5, 0.5, 60.0, analog=True)
+        remembered = flt.least_order("chebyshev1", 1000.0, 2500.0, 0.5, 60.0)
+        assert remembered is not None and remembered.order == n_ref
+        # entries of the wrong shape are refused, and nothing is overwritten
+        bad = {"prototypes": {("butterworth", 5, 0.1, 80.0): ((), ("pole",), 1.0),
+                              ("nonsense", 3, 0.1, 80.0): ((), (), 1.0)},
+               "least_orders": {("butterworth", 2.0, 1.0, 40.0): (4.5, 1.0)}}
+        assert flt.remember_designs(bad) == 0 and flt.remember_designs(["not", "a", "table"]) == 0
+        assert_allclose(np.sort_complex(flt._prototype("butterworth", 5, 0.1, 80.0)[1]),
+                        np.sort_complex(p_ref), rtol=1e-12)
+    finally:
+        flt._PROTOTYPES.clear()
+        flt._PROTOTYPES.update(saved_p)
+        flt._LEAST_ORDERS.clear()
+        flt._LEAST_ORDERS.update(saved_o)

@@ -8,6 +8,8 @@ Also a smoke test that the benchmark's synthetic trees load and check without er
 from __future__ import annotations
 
 import shutil
+import subprocess
+import sys
 from pathlib import Path
 from typing import Any
 
@@ -178,9 +180,76 @@ def test_unchanged_files_are_not_parsed_again(tmp_path: Path, monkeypatch: pytes
     assert parsed == ["channels/HYD-01.md"]
     assert _pages(out) == _fresh(specs, tmp_path / "fresh")
     # a damaged cache file is never unpickled: every file is parsed again and the site is still right
-    (out / site.RESULTS).write_bytes(b"not a pickle")
+    for shard in (out / site.CACHE).glob("*.pickle"):
+        shard.write_bytes(b"not a pickle")
     parsed.clear()
     edited.write_text(edited.read_text(encoding="utf-8") + "\nChecked again.\n", encoding="utf-8")
     site.build(specs, out)
     assert len(parsed) == 17
     assert _pages(out) == _fresh(specs, tmp_path / "fresh2")
+
+
+def test_worker_processes_write_the_same_site(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    # The demo's 17 channels stand in for a large system: with a low threshold a full build uses a
+    # pool of workers (pages, spec.json and the cache in workers), and a one-channel rebuild one
+    # worker for spec.json and the cache while the parent renders.  Reference: in-process builds.
+    monkeypatch.setattr(site, "POOL_MIN_PAGES", 5)
+    assert site._pool_size(17, 17) >= 1 and site._pool_size(17, 1) == 1
+    specs = tmp_path / "specs"
+    shutil.copytree(DEMO, specs)
+    out = tmp_path / "site"
+    site.build(specs, out)
+    monkeypatch.setattr(site, "POOL_MIN_PAGES", 10_000)
+    assert _pages(out) == _fresh(specs, tmp_path / "fresh1")
+    monkeypatch.setattr(site, "POOL_MIN_PAGES", 5)
+    edited = specs / "channels" / "HYD-01.md"
+    edited.write_text(edited.read_text(encoding="utf-8") + "\nHydrophone re-seated.\n", encoding="utf-8")
+    site.build(specs, out)
+    monkeypatch.setattr(site, "POOL_MIN_PAGES", 10_000)
+    assert _pages(out) == _fresh(specs, tmp_path / "fresh2")
+    # and the cache the worker wrote serves the next rebuild: nothing but the edited file is parsed
+    parsed: list[str] = []
+    real = load._load_channel
+    monkeypatch.setattr(load, "_load_channel", lambda path, rel, *a: parsed.append(rel) or real(path, rel, *a))
+    edited.write_text(edited.read_text(encoding="utf-8") + "\nAnd again.\n", encoding="utf-8")
+    site.build(specs, out)
+    assert parsed == ["channels/HYD-01.md"]
+
+
+def test_one_edited_channel_rewrites_one_cache_shard(tmp_path: Path) -> None:
+    specs = tmp_path / "specs"
+    shutil.copytree(DEMO, specs)
+    out = tmp_path / "site"
+    site.build(specs, out)
+    shards = {p.name: p.stat().st_ino for p in (out / site.CACHE).glob("channels-*.pickle")}
+    assert 5 <= len(shards) <= 17  # 17 channels spread over the shards by a hash of their path
+    site.build(specs, out, incremental=False)  # a fresh build writes every shard again
+    edited = specs / "channels" / "TQ-SHAFT.md"
+    edited.write_text(edited.read_text(encoding="utf-8") + "\nBridge re-balanced.\n", encoding="utf-8")
+    before = {p.name: p.stat().st_ino for p in (out / site.CACHE).glob("channels-*.pickle")}
+    site.build(specs, out)
+    after = {p.name: p.stat().st_ino for p in (out / site.CACHE).glob("channels-*.pickle")}
+    assert sorted(after) == sorted(before)
+    changed = {name for name in after if after[name] != before[name]}
+    assert changed == {Path(site.shard_of("channels/TQ-SHAFT.md")).name}
+
+
+def test_a_rebuild_after_a_note_edit_imports_no_scipy(tmp_path: Path) -> None:
+    # scipy takes about a second to import; the cache keeps the filter designs a rebuild needs.
+    # Each build runs in a fresh interpreter, as the command line would.
+    specs = tmp_path / "specs"
+    shutil.copytree(DEMO, specs)
+    out = tmp_path / "site"
+    script = ("import sys; from generator import site; site.build(sys.argv[1], sys.argv[2]); "
+              "print(sorted(m for m in ('scipy.signal', 'scipy.optimize') if m in sys.modules))")
+
+    def build() -> str:
+        done = subprocess.run([sys.executable, "-c", script, str(specs), str(out)], capture_output=True,
+                              text=True, check=True, cwd=Path(__file__).resolve().parent.parent)
+        return done.stdout.strip()
+
+    assert build() == "['scipy.optimize', 'scipy.signal']"  # the first build designs every filter
+    edited = specs / "channels" / "ACC-GBX-01.md"
+    edited.write_text(edited.read_text(encoding="utf-8") + "\nMount torqued to 12 N m.\n", encoding="utf-8")
+    assert "scipy.signal" not in build()
+    assert _pages(out) == _fresh(specs, tmp_path / "fresh")

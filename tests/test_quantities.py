@@ -362,3 +362,15 @@ def test_arbitrary_text_raises_only_spec_error(text: str, expect: str | tuple[st
             if isinstance(result, Unit):
                 numbers = [result.factor]
             assert np.all(np.isfinite(numbers))
+
+
+def test_remembered_formatting_keeps_signed_zero_and_types_apart() -> None:
+    # format_quantity remembers its texts; equal keys (0.0 == -0.0, 1 == 1.0) must not share one.
+    # Reference: the unremembered formatter.
+    from generator.quantities import _format_quantity
+
+    for value in (0.0, -0.0, 1, 1.0, -1e-9, 2.5e6, 2.5e6):
+        assert format_quantity(value, "Hz") == _format_quantity(value, "Hz")
+    assert format_quantity(-0.0, "V") == _format_quantity(-0.0, "V")
+    assert format_quantity(0.0, "V") == _format_quantity(0.0, "V")
+    assert format_quantity(20000.0, "Hz") == "20 kHz"  # from memory: 20 kHz is 20,000 Hz

@@ -160,3 +160,30 @@ def test_junit_fail_on_never_passes_everything(tmp_path: Path, capsys: pytest.Ca
     assert root.get("failures") == "0"
     # the finding is still reported, in the case's output
     assert any("below-nyquist" in (el.text or "") for el in root.iter("system-out"))
+
+
+def test_json_text_is_the_document_one_item_per_line() -> None:
+    # Reference: the standard library's JSON parser reading back what to_json wrote.
+    from generator.analysis import analyze
+    from generator.load import load_spec
+    from generator.report import spec_document, to_json
+    from generator.rules import run_rules
+
+    analysis = analyze(load_spec(DEMO))
+    findings = run_rules(analysis)
+    text = to_json(analysis, findings)
+    assert json.loads(text) == spec_document(analysis, findings)
+    assert json.loads(to_json(analysis, findings, ascii_only=True)) == spec_document(analysis, findings)
+    assert to_json(analysis, findings, ascii_only=True).isascii()
+    lines = text.splitlines()
+    for r in analysis.channels:  # one channel, one line: a change to it is one line of a diff
+        mine = [line for line in lines if line.startswith(f'    {{"id": "{r.channel.id}", ')]
+        assert len(mine) == 1 and json.loads(mine[0].rstrip(","))["figures"] == json.loads(
+            json.dumps(spec_document(analysis, [])["channels"][analysis.channels.index(r)]["figures"]))
+    assert sum(1 for line in lines if line.startswith('    {"rule": ')) == len(findings)
+    # a memo of figures text (the build cache) changes nothing, and a stale entry is written as given
+    memo: dict[str, str] = {}
+    assert to_json(analysis, findings, memo=memo) == text and len(memo) == len(analysis.channels)
+    assert to_json(analysis, findings, memo=memo) == text
+    memo[analysis.channels[0].channel.id] = '{"marker": 1}'
+    assert '"figures": {"marker": 1}' in to_json(analysis, findings, memo=memo)

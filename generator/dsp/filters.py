@@ -35,7 +35,7 @@ import math
 import warnings
 from dataclasses import dataclass
 from functools import lru_cache
-from typing import overload
+from typing import Any, overload
 
 import numpy as np
 from numpy.typing import NDArray
@@ -98,8 +98,7 @@ def _check_family(family: str) -> None:
         raise ValueError(f"unknown filter family {family!r}; expected one of {', '.join(FAMILIES)}")
 
 
-@lru_cache(maxsize=1024)
-def _prototype(
+def _design_prototype(
     family: str, order: int, ripple_db: float, stopband_db: float
 ) -> tuple[NDArray[np.complex128], NDArray[np.complex128], float]:
     """Zeros, poles and gain of the family's prototype with its corner at 1 rad/s [SCIPY]."""
@@ -131,6 +130,61 @@ def _prototype(
     if not (np.all(np.isfinite(z)) and np.all(np.isfinite(p)) and math.isfinite(float(k)) and k > 0):
         raise ValueError(f"{family} prototype of order {order} could not be designed")
     return z, p, float(k)
+
+Prototype = tuple[NDArray[np.complex128], NDArray[np.complex128], float]
+PrototypeKey = tuple[str, int, float, float]
+
+_PROTOTYPES: dict[PrototypeKey, Prototype] = {}
+"""Every prototype designed (or remembered) in this process.  A handful of (family, order,
+ripple, stopband) combinations serve thousands of channels, so each is designed once."""
+
+
+def _prototype(family: str, order: int, ripple_db: float, stopband_db: float) -> Prototype:
+    """The prototype of :func:`_design_prototype`, designed once per process (or remembered)."""
+    key = (family, order, ripple_db, stopband_db)
+    found = _PROTOTYPES.get(key)
+    if found is None:
+        found = _PROTOTYPES[key] = _design_prototype(family, order, ripple_db, stopband_db)
+    return found
+
+
+def known_designs() -> dict[str, Any]:
+    """The prototypes and least orders found so far, as plain values: a build cache may keep them
+    so that a later process needs no scipy (whose import costs about a second) for the same
+    filters.  Only valid for the same scipy version."""
+    return {
+        "prototypes": {key: (tuple(complex(v) for v in z), tuple(complex(v) for v in p), k)
+                       for key, (z, p, k) in sorted(_PROTOTYPES.items())},
+        "least_orders": dict(sorted(_LEAST_ORDERS.items(), key=lambda item: repr(item[0]))),
+    }
+
+
+def _is_key(key: object, kinds: tuple[type, ...]) -> bool:
+    return (isinstance(key, tuple) and len(key) == len(kinds) and key[0] in FAMILIES
+            and all(type(v) is t for v, t in zip(key, kinds, strict=True)))
+
+
+def remember_designs(table: object) -> int:
+    """Take what :func:`known_designs` kept (computed by the same scipy); entries of the wrong
+    shape are ignored.  Returns how many were taken."""
+    if not isinstance(table, dict):
+        return 0
+    taken = 0
+    prototypes, orders = table.get("prototypes"), table.get("least_orders")
+    for key, value in prototypes.items() if isinstance(prototypes, dict) else ():
+        if (_is_key(key, (str, int, float, float)) and isinstance(value, tuple) and len(value) == 3
+                and type(value[2]) is float
+                and all(isinstance(v, tuple) and all(type(c) is complex for c in v) for v in value[:2])):
+            _PROTOTYPES.setdefault(key, (np.asarray(value[0], dtype=np.complex128),
+                                         np.asarray(value[1], dtype=np.complex128), value[2]))
+            taken += 1
+    for key, value in orders.items() if isinstance(orders, dict) else ():
+        if _is_key(key, (str, float, float, float)) and (
+                value is None or (isinstance(value, tuple) and len(value) == 2 and type(value[0]) is int
+                                  and type(value[1]) is float)):
+            _LEAST_ORDERS.setdefault(key, value)
+            taken += 1
+    return taken
 
 
 @lru_cache(maxsize=65536)
@@ -290,8 +344,19 @@ def _solve_normalised_loss(family: str, order: int, ripple: float, stop: float, 
     return math.exp(float(optimize.brentq(g, lo, hi, xtol=1e-13, rtol=1e-13)))
 
 
-@lru_cache(maxsize=16384)
+_LEAST_ORDERS: dict[tuple[str, float, float, float], tuple[int, float] | None] = {}
+"""Every least order found in this process (or remembered), by (family, ratio, Ap, As)."""
+
+
 def _least_order_normalised(family: str, ratio: float, ap: float, as_: float) -> tuple[int, float] | None:
+    """:func:`_find_least_order_normalised`, found once per process (or remembered)."""
+    key = (family, ratio, ap, as_)
+    if key not in _LEAST_ORDERS:
+        _LEAST_ORDERS[key] = _find_least_order_normalised(family, ratio, ap, as_)
+    return _LEAST_ORDERS[key]
+
+
+def _find_least_order_normalised(family: str, ratio: float, ap: float, as_: float) -> tuple[int, float] | None:
     """Least order and corner for f_pass = 1, f_stop = ratio; None when above MAX_ORDER."""
     if family == "bessel":
         for n in range(1, MAX_ORDER + 1):

@@ -21,6 +21,7 @@ References
 from __future__ import annotations
 
 import math
+from functools import lru_cache
 
 import numpy as np
 
@@ -100,6 +101,7 @@ def filter_needed_at_image_db(target_db: float, f_hz: float, rate_hz: float) -> 
     return target_db + image_level_after_hold_db(f_hz, rate_hz)
 
 
+@lru_cache(maxsize=4096)
 def max_hold_fraction(loss_db: float) -> float:
     """Largest f/fs at which the hold loses no more than ``loss_db`` (> 0) dB.
 
