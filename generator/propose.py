@@ -323,6 +323,12 @@ class IncrementalCheck:
         return self._last
 
     def breaks(self, candidate: Channel) -> list[str]:
+        """As :meth:`SharedCheck.breaks`; ValueError when ``candidate`` names another converter, link
+        or group than the spec's channel of its id (its reach would be another)."""
+        old = self.index.spec.channel(candidate.id)
+        if ((old.conversion.converter, old.conversion.link, old.match)
+                != (candidate.conversion.converter, candidate.conversion.link, candidate.match)):
+            raise ValueError(f"{candidate.id}: a candidate keeps the channel's converter, link and group")
         reach, members, before = self._before(candidate.id)
         placed = tuple(candidate if ch.id == candidate.id else ch for ch in members)
         found = run_rules(self._analysis(placed, self.index.rebudget(reach, candidate)), only=SHARED_RULES)

@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import re
 import shutil
+from dataclasses import replace
 from pathlib import Path
 
 import pytest
@@ -225,3 +226,13 @@ def test_a_multiplexed_converter_reaches_its_other_channels_groups() -> None:
     assert index.rebudget(reach, faster).group("blade-roots") != index.budgets.group("blade-roots")
     # a simultaneous converter's channels keep their timing: only the channel's own group
     assert index.reach("ACC-GBX-01").groups == ("gearbox-pair",)
+
+
+def test_a_candidate_moved_to_another_converter_is_refused() -> None:
+    spec = load_spec(DEMO)
+    tacho = spec.channel("TACHO-HSS")
+    moved = replace(tacho, conversion=replace(tacho.conversion, converter="adc-ds"))
+    check = P.IncrementalCheck(spec)
+    assert check.breaks(tacho) == []  # the channel as it is breaks nothing
+    with pytest.raises(ValueError, match="keeps the channel's converter"):
+        check.breaks(moved)
