@@ -12,11 +12,13 @@ For a channel, the search enumerates what the hardware can really do:
 
 Each candidate is checked by re-analysing the channel with the candidate applied
 (``dataclasses.replace``) and running the per-channel sampling and amplitude rules; the best
-candidates, in the order of the objective, are then applied to the whole spec and kept only when
-the shared constraints (converter throughput, shared rate, clock dividers, link, store, group
-skew) get no new finding.  For one filter shape, a higher rate only adds data, so per family and
-order only the least rate that passes is kept: rates are tried in ascending order from the least
-the filter could possibly work at.
+candidates, in the order of the objective, are then kept only when the shared constraints
+(converter throughput, shared rate, clock dividers, link, store, group skew) get no new finding
+with the candidate in place.  That check (:class:`IncrementalCheck`) recomputes only the budgets
+of the resources the channel reaches (its converter and clock, its link and store, its group):
+thousands of flagged channels cost no more each than a handful.  For one filter shape, a higher
+rate only adds data, so per family and order only the least rate that passes is kept: rates are
+tried in ascending order from the least the filter could possibly work at.
 
 Objective (default): least data rate, then least filter order, then least group delay at DC.
 Pure: no printing and no file access; :func:`edit_header` computes a file's new text.
@@ -27,10 +29,12 @@ from __future__ import annotations
 import math
 import re
 from collections.abc import Iterator, Mapping, Sequence
-from dataclasses import dataclass, field, replace
+from dataclasses import dataclass, replace
 from functools import lru_cache
+from typing import Protocol
 
 from .analysis import ChannelResult, SystemAnalysis, analyze, analyze_channel
+from .analysis.budgets import BudgetIndex, Budgets, Reach
 from .dsp import filters as flt
 from .load import locate_keys, split_header
 from .model import Channel, Converter, Filter, Spec
@@ -104,12 +108,6 @@ class Proposal:
     edits: tuple[tuple[str, str], ...] = ()  # ("conversion.rate", '"48 kS/s"'), in file order of keys
     fixes: tuple[str, ...] = ()  # rules with findings now that the design clears
     stages: tuple[flt.Stage, ...] = ()
-
-
-@dataclass
-class _Search:
-    spec: Spec
-    baseline_shared: dict[str, int] = field(default_factory=dict)
 
 
 def _ordinal(n: int) -> str:
@@ -257,19 +255,84 @@ def channel_findings(spec: Spec, channel: Channel, rules: Sequence[str] = TARGET
     return [f for f in run_rules(SystemAnalysis(spec2, (result,)), only=rules) if not f.waived]
 
 
-def _shared_counts(spec: Spec, known: Mapping[str, ChannelResult] | None = None) -> dict[str, int]:
-    """Unwaived findings per shared rule; ``known`` (results of the unchanged channels, by id) spares
-    analysing every channel again when only one differs: budgets are always computed afresh."""
-    found = run_rules(analyze(spec, known), only=SHARED_RULES)
+def _unwaived_counts(findings: Sequence[Finding]) -> dict[str, int]:
     counts: dict[str, int] = {}
-    for f in found:
+    for f in findings:
         if not f.waived:
             counts[f.rule] = counts.get(f.rule, 0) + 1
     return counts
 
 
+def _shared_counts(spec: Spec, known: Mapping[str, ChannelResult] | None = None) -> dict[str, int]:
+    """Unwaived findings per shared rule; ``known`` (results of the unchanged channels, by id) spares
+    analysing every channel again when only one differs: budgets are always computed afresh."""
+    return _unwaived_counts(run_rules(analyze(spec, known), only=SHARED_RULES))
+
+
 def _new_shared(before: dict[str, int], after: dict[str, int]) -> list[str]:
     return sorted(r for r, n in after.items() if n > before.get(r, 0))
+
+
+class SharedCheck(Protocol):
+    """Which shared rules a candidate design breaks."""
+
+    def breaks(self, candidate: Channel) -> list[str]:
+        """Shared rules with more unwaived findings once ``candidate`` takes the place of the spec's
+        channel of its id (same converter, link and group; another rate or filter), sorted."""
+        ...
+
+
+class WholeSystemCheck:
+    """The reference check: per candidate, the whole spec is analysed again and every shared rule
+    run over everything.  Its cost grows with the system; :class:`IncrementalCheck` gives the same
+    verdicts (the tests compare them)."""
+
+    def __init__(self, spec: Spec, known: Mapping[str, ChannelResult] | None = None) -> None:
+        self.spec, self.known = spec, known
+        self.before = _shared_counts(spec, known)
+
+    def breaks(self, candidate: Channel) -> list[str]:
+        return _new_shared(self.before, _shared_counts(replace_channel(self.spec, candidate), self.known))
+
+
+class IncrementalCheck:
+    """Shared rules run only on the resources the candidate's channel reaches
+    (:meth:`generator.analysis.budgets.BudgetIndex.reach`), their budgets recomputed with the
+    candidate in place and compared with the same resources as they are.
+
+    Every other resource keeps its budget and so its findings (waivers belong to the channels a
+    finding names, which do not change), so a rule has more findings over the whole system exactly
+    when it has more over the reach: the verdicts of :class:`WholeSystemCheck`, at the cost of the
+    few resources one channel touches.  The rules run unchanged, on a :class:`SystemAnalysis` whose
+    spec holds the reach's channels and whose budgets hold the reach's resources."""
+
+    def __init__(self, spec: Spec, budgets: Budgets | None = None) -> None:
+        self.index = BudgetIndex(spec, budgets)
+        self._last: tuple[Reach, tuple[Channel, ...], dict[str, int]] | None = None
+
+    def _analysis(self, channels: tuple[Channel, ...], budgets: Budgets) -> SystemAnalysis:
+        spec = replace(self.index.spec, channels=channels)
+        return SystemAnalysis(spec, tuple(ChannelResult(ch) for ch in channels), budgets)
+
+    def _before(self, channel_id: str) -> tuple[Reach, tuple[Channel, ...], dict[str, int]]:
+        if self._last is None or self._last[0].channel != channel_id:  # candidates come channel by channel
+            reach = self.index.reach(channel_id)
+            members = tuple(self.index.spec.channel(cid) for cid in reach.channels)
+            found = run_rules(self._analysis(members, self.index.within(reach)), only=SHARED_RULES)
+            self._last = (reach, members, _unwaived_counts(found))
+        return self._last
+
+    def breaks(self, candidate: Channel) -> list[str]:
+        """As :meth:`SharedCheck.breaks`; ValueError when ``candidate`` names another converter, link
+        or group than the spec's channel of its id (its reach would be another)."""
+        old = self.index.spec.channel(candidate.id)
+        if ((old.conversion.converter, old.conversion.link, old.match)
+                != (candidate.conversion.converter, candidate.conversion.link, candidate.match)):
+            raise ValueError(f"{candidate.id}: a candidate keeps the channel's converter, link and group")
+        reach, members, before = self._before(candidate.id)
+        placed = tuple(candidate if ch.id == candidate.id else ch for ch in members)
+        found = run_rules(self._analysis(placed, self.index.rebudget(reach, candidate)), only=SHARED_RULES)
+        return _new_shared(before, _unwaived_counts(found))
 
 
 # ------------------------------------------------------------------------------------ search
@@ -390,9 +453,9 @@ def _why_none(spec: Spec, channel: Channel, base: ChannelResult, sampling_ok: li
 
 
 def propose_channel(spec: Spec, channel: Channel, prefer: Sequence[str] = DEFAULT_PREFERENCE,
-                    baseline_shared: dict[str, int] | None = None,
-                    known: Mapping[str, ChannelResult] | None = None) -> Proposal:
-    """The best design for one channel under ``prefer``, checked against the shared constraints."""
+                    check: SharedCheck | None = None) -> Proposal:
+    """The best design for one channel under ``prefer``, checked against the shared constraints
+    by ``check`` (default: an :class:`IncrementalCheck` of ``spec``)."""
     base_findings = channel_findings(spec, channel)
     fixed_elsewhere = sorted({f.rule for f in base_findings if f.rule in FIXED_BY_OTHER_MEANS})
     unfixable = [f"{f.rule}: {f.message} (not a matter of rate or filter)" for f in base_findings
@@ -411,11 +474,10 @@ def propose_channel(spec: Spec, channel: Channel, prefer: Sequence[str] = DEFAUL
         # The sampling rules can still be met: propose that, and say what stays out of reach.
         found = sampling_ok
         unfixable.extend(reasons)
-    before = baseline_shared if baseline_shared is not None else _shared_counts(spec, known)
+    shared = check if check is not None else IncrementalCheck(spec)
     rejected: list[str] = []
     for d in sorted(found, key=lambda x: x.key(prefer)):
-        applied = replace_channel(spec, with_design(channel, d.rate_hz, d.as_filter()))
-        new = _new_shared(before, _shared_counts(applied, known))
+        new = shared.breaks(with_design(channel, d.rate_hz, d.as_filter()))
         if new:
             rejected.append(f"{_rate_words(d.rate_hz)} with a {_ordinal(d.order)}-order {d.family} "
                             f"breaks {', '.join(new)}")
@@ -445,8 +507,13 @@ def flagged_channels(spec: Spec, findings: Sequence[Finding] | None = None) -> l
 
 def propose(spec: Spec, channel_ids: Sequence[str] | None = None,
             prefer: Sequence[str] = DEFAULT_PREFERENCE,
-            known: Mapping[str, ChannelResult] | None = None) -> list[Proposal]:
+            known: Mapping[str, ChannelResult] | None = None, whole_system: bool = False) -> list[Proposal]:
     """Proposals for the named channels (default: :func:`flagged_channels`), in id order.
+
+    The shared constraints are checked by an :class:`IncrementalCheck`, its baseline budgets
+    computed once here; ``whole_system`` uses the :class:`WholeSystemCheck` instead (the slow
+    reference, for the tests), which reuses ``known`` (the caller's results for this very spec,
+    by channel id) rather than analysing every channel again.
 
     Raises KeyError for an unknown channel id; ValueError for an unknown criterion in ``prefer``.
     """
@@ -455,10 +522,14 @@ def propose(spec: Spec, channel_ids: Sequence[str] | None = None,
         raise ValueError(f"preference {','.join(prefer)}: use each of {', '.join(CRITERIA)} at most once")
     order = [*prefer, *(c for c in CRITERIA if c not in prefer)]
     ids = list(channel_ids) if channel_ids else flagged_channels(spec)
-    if known is None:  # the caller's analysis of this very spec, when it has one
-        known = {r.channel.id: r for r in analyze(spec).channels}
-    baseline = _shared_counts(spec, known)
-    return [propose_channel(spec, spec.channel(cid), order, baseline, known) for cid in ids]
+    check: SharedCheck
+    if whole_system:
+        if known is None:  # the caller's analysis of this very spec, when it has one
+            known = {r.channel.id: r for r in analyze(spec).channels}
+        check = WholeSystemCheck(spec, known)
+    else:
+        check = IncrementalCheck(spec)
+    return [propose_channel(spec, spec.channel(cid), order, check) for cid in ids]
 
 
 def apply_proposals(spec: Spec, proposals: Sequence[Proposal]) -> Spec:

@@ -22,14 +22,15 @@ Definitions used throughout (see the README):
 from __future__ import annotations
 
 import math
-from collections.abc import Mapping
+from collections import ChainMap
+from collections.abc import Iterable, Mapping, Sequence
 from dataclasses import dataclass, field
 from types import MappingProxyType
 from typing import Any
 
 from ..dsp import budgets as dsp
 from ..dsp import filters, quantization
-from ..model import Channel, Clock, Converter, Filter, Spec
+from ..model import Channel, Clock, Converter, Filter, Group, Link, Spec, Store
 from .figures import FigureValue, figure
 
 DATA_RATE = figure("data_rate_bps", "Data rate", "bit/s", "fs x C (image: frame rate x W x H x C)",
@@ -204,7 +205,8 @@ def channel_budget(ch: Channel) -> ChannelBudget | None:
 # ---------------------------------------------------------------------- converters
 
 
-def _converter_load(conv: Converter, members: list[Channel]) -> ConverterLoad:
+def converter_load(conv: Converter, members: Sequence[Channel]) -> ConverterLoad:
+    """Load of one converter from the channels naming it (in spec order: a multiplexer scans them so)."""
     ids = tuple(ch.id for ch in members)
     rates = tuple(ch.conversion.rate or 0.0 for ch in members)
     aggregate = sum(rates)
@@ -241,7 +243,8 @@ def _check_division(subject: str, conv: Converter, clock: Clock, channels: tuple
                       dsp.ppm_error(near_hz, target) if near_hz else None, _allowed_words(dividers, divider_range))
 
 
-def _clock_checks(conv: Converter, clock: Clock, members: list[Channel]) -> list[ClockCheck]:
+def clock_checks(conv: Converter, clock: Clock, members: Sequence[Channel]) -> list[ClockCheck]:
+    """Whether the converter's modulator rate (delta-sigma) and each distinct rate of its channels divide out."""
     out: list[ClockCheck] = []
     by_rate: dict[float, list[str]] = {}
     for ch in members:
@@ -267,6 +270,27 @@ def _clock_checks(conv: Converter, clock: Clock, members: list[Channel]) -> list
     return out
 
 
+# --------------------------------------------------------------------- links, stores
+
+
+def link_budget(link: Link, members: Sequence[tuple[str, ChannelBudget]]) -> LinkBudget:
+    """Load of one link from the budgets of the channels routed over it (id, budget; in spec order)."""
+    payload = sum(b.data_rate_bps for _, b in members)
+    load = dsp.link_load(payload, link.overhead)
+    return LinkBudget(link.id, tuple(cid for cid, _ in members), payload, load, link.capacity_bps,
+                      dsp.usable_capacity(link.capacity_bps, link.headroom),
+                      dsp.utilisation(load, link.capacity_bps), 1.0 - link.headroom, link.store)
+
+
+def store_budget(store: Store, feeding: Sequence[LinkBudget], duration: float | None) -> StoreBudget:
+    """Use of one store from the links recording into it (by link id), for a recording of ``duration`` s."""
+    stream = sum(lk.payload_bps for lk in feeding)
+    needed = dsp.record_bytes(stream, duration) if duration is not None else None
+    return StoreBudget(store.id, tuple(lk.id for lk in feeding), stream, duration, needed, store.capacity_bytes,
+                       dsp.utilisation(needed, store.capacity_bytes) if needed is not None else None,
+                       dsp.holding_time(store.capacity_bytes, stream))
+
+
 # -------------------------------------------------------------------------- groups
 
 
@@ -278,85 +302,198 @@ def _filter_zpk(filt: Filter) -> dsp.Zpk | None:
     return (f.zeros, f.poles, f.gain)
 
 
-def _group_timing(spec: Spec, gid: str, members: list[Channel], skews: Mapping[str, float]) -> GroupTiming:
-    group = spec.system.groups[gid]
-    known: list[tuple[str, dsp.Zpk | None, float]] = []
+def group_timing(group: Group, members: Sequence[Channel], skews: Mapping[str, float]) -> GroupTiming:
+    """Timing of one group from its members (in spec order) and their scan skews (absent: 0 s)."""
+    known: list[tuple[Channel, dsp.Zpk | None, float]] = []
     unknown: list[str] = []
     for ch in members:
         zpk = _filter_zpk(ch.filter) if ch.filter is not None else None
         if ch.signal.band is None or (ch.filter is not None and zpk is None):
             unknown.append(ch.id)
         else:
-            known.append((ch.id, zpk, skews.get(ch.id, 0.0)))
-    f = max((spec.channel(cid).signal.band or (0.0, 0.0))[1] for cid, _, _ in known) if known else None
+            known.append((ch, zpk, skews.get(ch.id, 0.0)))
+    f = max((ch.signal.band or (0.0, 0.0))[1] for ch, _, _ in known) if known else None
     phases: dict[str, float] = {}
     estimates: dict[str, float] = {}
     if f:
         _, ref_zpk, ref_t = known[0]
-        for cid, zpk, t in known:
+        for ch, zpk, t in known:
             # each member against the first: exact phase, and the DC-delay estimate of the same
-            phases[cid] = dsp.phase_difference(zpk, ref_zpk, f, t, ref_t)
-            estimates[cid] = dsp.phase_difference_dc_estimate(zpk, ref_zpk, f) - 2 * math.pi * f * (t - ref_t)
+            phases[ch.id] = dsp.phase_difference(zpk, ref_zpk, f, t, ref_t)
+            estimates[ch.id] = dsp.phase_difference_dc_estimate(zpk, ref_zpk, f) - 2 * math.pi * f * (t - ref_t)
     spread = max(phases.values()) - min(phases.values()) if phases else 0.0
     dc_spread = max(estimates.values()) - min(estimates.values()) if estimates else 0.0
-    return GroupTiming(gid, tuple(cid for cid, _, _ in known), tuple(unknown), f, MappingProxyType(phases),
+    return GroupTiming(group.id, tuple(ch.id for ch, _, _ in known), tuple(unknown), f, MappingProxyType(phases),
                        spread, spread / (2 * math.pi * f) if f else 0.0, dc_spread, group.phase_rad, group.skew_s)
 
 
 # ---------------------------------------------------------------------------- all
 
 
+@dataclass(frozen=True)
+class Sharing:
+    """Who shares what: per converter, link and group of the system the ids of the channels naming
+    it, in spec order (whether or not they have a rate yet); per store the links recording into it,
+    by id.  Resources nobody names map to ``()``."""
+
+    converters: Mapping[str, tuple[str, ...]]
+    links: Mapping[str, tuple[str, ...]]
+    groups: Mapping[str, tuple[str, ...]]
+    feeds: Mapping[str, tuple[str, ...]]
+
+
+def sharing(spec: Spec) -> Sharing:
+    """Who shares what in ``spec``, in one pass over the channels."""
+    system = spec.system
+    on: dict[str, dict[str, list[str]]] = {"converters": {cid: [] for cid in system.converters},
+                                           "links": {lid: [] for lid in system.links},
+                                           "groups": {gid: [] for gid in system.groups}}
+    for ch in spec.channels:  # one pass: a large system has thousands of converters, links and groups
+        for kind, rid in (("converters", ch.conversion.converter), ("links", ch.conversion.link),
+                          ("groups", ch.match)):
+            if rid is not None and rid in on[kind]:
+                on[kind][rid].append(ch.id)
+    feeds: dict[str, list[str]] = {sid: [] for sid in system.stores}
+    for lid, link in sorted(system.links.items()):
+        if link.store in feeds:
+            feeds[link.store].append(lid)
+
+    def frozen(table: dict[str, list[str]]) -> Mapping[str, tuple[str, ...]]:
+        return MappingProxyType({k: tuple(v) for k, v in table.items()})
+
+    return Sharing(frozen(on["converters"]), frozen(on["links"]), frozen(on["groups"]), frozen(feeds))
+
+
+def _link_members(ids: Iterable[str], per_channel: Mapping[str, ChannelBudget]) -> list[tuple[str, ChannelBudget]]:
+    return [(cid, per_channel[cid]) for cid in ids if cid in per_channel]
+
+
 def analyze_budgets(spec: Spec) -> Budgets:
     """Every budget of the shared hardware, from the loaded spec."""
+    return _budgets(spec, sharing(spec))
+
+
+def _budgets(spec: Spec, shared: Sharing) -> Budgets:
     system = spec.system
     per_channel = {ch.id: b for ch in spec.channels if (b := channel_budget(ch)) is not None}
 
-    on_converter: dict[str, list[Channel]] = {cid: [] for cid in system.converters}
-    for ch in spec.channels:
-        if ch.conversion.converter in on_converter:
-            on_converter[ch.conversion.converter].append(ch)
-    converters = tuple(_converter_load(conv, on_converter[cid]) for cid, conv in sorted(system.converters.items()))
-    skews = {cid: t for c in converters for cid, t in c.scan_skew_s.items()}
+    def members(ids: tuple[str, ...]) -> list[Channel]:
+        return [spec.channel(cid) for cid in ids]
 
+    converters = tuple(converter_load(conv, members(shared.converters[cid]))
+                       for cid, conv in sorted(system.converters.items()))
+    skews = {cid: t for c in converters for cid, t in c.scan_skew_s.items()}
     clocks: list[ClockCheck] = []
     for cid, conv in sorted(system.converters.items()):
         if conv.clock is not None and conv.clock in system.clocks:
-            clocks.extend(_clock_checks(conv, system.clocks[conv.clock], on_converter[cid]))
+            clocks.extend(clock_checks(conv, system.clocks[conv.clock], members(shared.converters[cid])))
+    links = {lid: link_budget(link, _link_members(shared.links[lid], per_channel))
+             for lid, link in sorted(system.links.items())}
+    stores = tuple(store_budget(store, [links[lid] for lid in shared.feeds[sid]], system.record_duration_s)
+                   for sid, store in sorted(system.stores.items()))
+    groups = tuple(group_timing(group, members(shared.groups[gid]), skews)
+                   for gid, group in sorted(system.groups.items()) if shared.groups[gid])
+    return Budgets(MappingProxyType(per_channel), converters, tuple(clocks), tuple(links.values()), stores, groups)
 
-    on_link: dict[str, list[str]] = {}
-    by_group: dict[str, list[Channel]] = {}
-    for ch in spec.channels:  # one pass: a large system has hundreds of links and groups
-        if ch.conversion.link is not None and ch.id in per_channel:
-            on_link.setdefault(ch.conversion.link, []).append(ch.id)
-        if ch.match is not None:
-            by_group.setdefault(ch.match, []).append(ch)
-    links = []
-    for lid, link in sorted(system.links.items()):
-        ids = tuple(on_link.get(lid, ()))
-        payload = sum(per_channel[cid].data_rate_bps for cid in ids)
-        load = dsp.link_load(payload, link.overhead)
-        links.append(LinkBudget(lid, ids, payload, load, link.capacity_bps,
-                                dsp.usable_capacity(link.capacity_bps, link.headroom),
-                                dsp.utilisation(load, link.capacity_bps), 1.0 - link.headroom, link.store))
 
-    stores = []
-    duration = system.record_duration_s
-    feeds: dict[str | None, list[LinkBudget]] = {}
-    for lk in links:
-        feeds.setdefault(lk.store, []).append(lk)
-    for sid, store in sorted(system.stores.items()):
-        feeding = feeds.get(sid, [])
-        stream = sum(lk.payload_bps for lk in feeding)
-        needed = dsp.record_bytes(stream, duration) if duration is not None else None
-        stores.append(StoreBudget(sid, tuple(lk.id for lk in feeding), stream, duration, needed, store.capacity_bytes,
-                                  dsp.utilisation(needed, store.capacity_bytes) if needed is not None else None,
-                                  dsp.holding_time(store.capacity_bytes, stream)))
+# ------------------------------------------------------------------- one channel changed
 
-    groups = []
-    for gid in sorted(system.groups):
-        members = by_group.get(gid, [])
-        if members:
-            groups.append(_group_timing(spec, gid, members, skews))
 
-    return Budgets(MappingProxyType(per_channel), converters, tuple(clocks), tuple(links), tuple(stores),
-                   tuple(groups))
+@dataclass(frozen=True)
+class Reach:
+    """The shared resources whose budgets a channel's rate, container and filter bear on.
+
+    Its converter (with that converter's clock checks), its link and the store that link records
+    into, and its timing group; on a multiplexed converter also the group of every channel on it,
+    since the scan skew of each depends on the sum of their rates.  ``links`` are every link
+    recording into the store (the storage rule names their channels), or the channel's own link;
+    ``channels`` every channel naming one of these resources, sorted by id."""
+
+    channel: str
+    converter: str | None
+    links: tuple[str, ...]
+    link: str | None
+    store: str | None
+    groups: tuple[str, ...]
+    channels: tuple[str, ...]
+
+
+class BudgetIndex:
+    """A spec's budgets, indexed by resource, to recompute only those one changed channel alters.
+
+    ``budgets`` must be :func:`analyze_budgets` of ``spec`` (computed here when not given).  The
+    changed channel keeps its id, converter, link and group (only its rate, container or filter
+    differ); the result holds only the resources of its :class:`Reach`, computed by the same
+    per-resource functions as :func:`analyze_budgets`, so each equals what a whole analysis of the
+    changed spec gives for that resource."""
+
+    def __init__(self, spec: Spec, budgets: Budgets | None = None) -> None:
+        self.spec = spec
+        self.sharing = sharing(spec)
+        self.budgets = budgets if budgets is not None else _budgets(spec, self.sharing)
+        b = self.budgets
+        self._converters = {c.id: c for c in b.converters}
+        self._clocks: dict[str, list[ClockCheck]] = {}
+        for c in b.clocks:
+            self._clocks.setdefault(c.converter, []).append(c)
+        self._links = {lk.id: lk for lk in b.links}
+        self._stores = {st.id: st for st in b.stores}
+        self._groups = {g.id: g for g in b.groups}
+        self._skews = {cid: t for c in b.converters for cid, t in c.scan_skew_s.items()}
+
+    def reach(self, channel_id: str) -> Reach:
+        """What a change of the channel's rate, container or filter can alter (KeyError: no such channel)."""
+        system, shared = self.spec.system, self.sharing
+        ch = self.spec.channel(channel_id)
+        conv = ch.conversion.converter if ch.conversion.converter in system.converters else None
+        link = ch.conversion.link if ch.conversion.link in system.links else None
+        store = system.links[link].store if link is not None else None
+        store = store if store in system.stores else None
+        links = shared.feeds[store] if store is not None else (link,) if link is not None else ()
+        on_conv = shared.converters[conv] if conv is not None else ()
+        matches = [ch.match]
+        if conv is not None and system.converters[conv].sampling == "multiplexed":
+            matches.extend(self.spec.channel(cid).match for cid in on_conv)
+        groups = {g for g in matches if g is not None and g in system.groups}
+        ids = {ch.id, *on_conv, *(cid for lid in links for cid in shared.links[lid]),
+               *(cid for g in groups for cid in shared.groups[g])}
+        return Reach(ch.id, conv, tuple(links), link, store, tuple(sorted(groups)), tuple(sorted(ids)))
+
+    def within(self, reach: Reach) -> Budgets:
+        """The budgets of ``reach``'s resources as they are in the spec."""
+        per_channel = self.budgets.channels
+        return Budgets(MappingProxyType({cid: per_channel[cid] for cid in reach.channels if cid in per_channel}),
+                       (self._converters[reach.converter],) if reach.converter is not None else (),
+                       tuple(self._clocks.get(reach.converter, ())) if reach.converter is not None else (),
+                       tuple(self._links[lid] for lid in reach.links),
+                       (self._stores[reach.store],) if reach.store is not None else (),
+                       tuple(self._groups[g] for g in reach.groups))
+
+    def rebudget(self, reach: Reach, changed: Channel) -> Budgets:
+        """The budgets of ``reach``'s resources with ``changed`` in place of the channel of its id."""
+        system, shared, spec = self.spec.system, self.sharing, self.spec
+
+        def channel(cid: str) -> Channel:
+            return changed if cid == changed.id else spec.channel(cid)
+
+        per_channel = {cid: b for cid in reach.channels
+                       if (b := (channel_budget(changed) if cid == changed.id else self.budgets.channels.get(cid)))
+                       is not None}
+        converters: tuple[ConverterLoad, ...] = ()
+        clocks: list[ClockCheck] = []
+        skews: Mapping[str, float] = self._skews
+        if reach.converter is not None:
+            conv = system.converters[reach.converter]
+            members = [channel(cid) for cid in shared.converters[conv.id]]
+            load = converter_load(conv, members)
+            converters = (load,)
+            if conv.clock is not None and conv.clock in system.clocks:
+                clocks = clock_checks(conv, system.clocks[conv.clock], members)
+            skews = ChainMap({cid: load.scan_skew_s.get(cid, 0.0) for cid in load.channels}, self._skews)
+        links = tuple(link_budget(system.links[lid], _link_members(shared.links[lid], per_channel))
+                      if lid == reach.link else self._links[lid] for lid in reach.links)
+        stores = ((store_budget(system.stores[reach.store], links, system.record_duration_s),)
+                  if reach.store is not None else ())
+        groups = tuple(group_timing(system.groups[g], [channel(cid) for cid in shared.groups[g]], skews)
+                       for g in reach.groups)
+        return Budgets(MappingProxyType(per_channel), converters, tuple(clocks), links, stores, groups)
