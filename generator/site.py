@@ -79,7 +79,7 @@ import jinja2
 
 from . import __version__, render
 from .analysis import ChannelResult, SystemAnalysis, analyze
-from .dsp.filters import known_designs, remember_designs
+from .dsp import memo
 from .errors import SpecError
 from .load import SYSTEM_FILE, channel_files, load_spec
 from .model import System
@@ -556,9 +556,9 @@ def shard_of(rel: str) -> str:
     return f"{CACHE}/channels-{hashlib.sha256(rel.encode('utf-8')).digest()[0] % RESULT_SHARDS:02d}.pickle"
 
 
-def _write_cache(tmp: Path, reuse: Reuse, analysis: SystemAnalysis, figures: dict[str, str],
-                 cached: Cached) -> dict[str, Any]:
-    """Write the build cache into ``tmp``; returns its listing for the manifest (file -> SHA-256).
+def _write_shards(tmp: Path, reuse: Reuse, analysis: SystemAnalysis, figures: dict[str, str],
+                  cached: Cached) -> dict[str, str]:
+    """Write the channel shards of the build cache into ``tmp``; returns file -> SHA-256.
 
     A shard whose entries are the very ones read from the current site is carried over (linked)
     rather than pickled again."""
@@ -578,9 +578,16 @@ def _write_cache(tmp: Path, reuse: Reuse, analysis: SystemAnalysis, figures: dic
         data = _pickled(entries)
         _write(tmp, name, data)
         listing[name] = hashlib.sha256(data).hexdigest()
-    shared = _pickled({"system": (reuse.system_key(), analysis.spec.system), "designs": known_designs()})
-    _write(tmp, SHARED_CACHE, shared)
-    return {"shared": hashlib.sha256(shared).hexdigest(), "shards": listing}
+    return listing
+
+
+def _write_shared(tmp: Path, reuse: Reuse, analysis: SystemAnalysis) -> str:
+    """Write the loaded system and this process's numerical memos (``dsp.memo``) into ``tmp``;
+    returns the file's SHA-256.  Written last, once every page (and with it every chart's filter
+    designs) is done."""
+    data = _pickled({"system": (reuse.system_key(), analysis.spec.system), "designs": memo.known()})
+    _write(tmp, SHARED_CACHE, data)
+    return hashlib.sha256(data).hexdigest()
 
 
 # ---------------------------------------------------------------------------------------------
@@ -618,24 +625,26 @@ def _render_one(i: int, job: _Job) -> str:
     return rel
 
 
-def _render_chunk(indices: list[int]) -> int:
+def _render_chunk(indices: list[int]) -> tuple[int, dict[str, dict[object, object]]]:
+    """Render a chunk in a worker; returns how many pages, and the worker's numerical memos (the
+    charts' filter designs), which the parent keeps in the cache."""
     assert _JOB is not None
     for i in indices:
         _render_one(i, _JOB)
-    return len(indices)
+    return len(indices), memo.known()
 
 
-def _data_and_cache(job: _Job | None = None) -> dict[str, Any] | None:
-    """Write data/spec.json and, with a reuse, the build cache; returns the cache's listing.
+def _data_and_shards(job: _Job | None = None) -> dict[str, str] | None:
+    """Write data/spec.json and, with a reuse, the cache's channel shards; returns their listing.
 
-    One task, since the cache keeps the figures text that writing spec.json encodes."""
+    One task, since the shards keep the figures text that writing spec.json encodes."""
     job = job if job is not None else _JOB
     assert job is not None
     analysis = job.ctx.analysis
     _write(job.tmp, "data/spec.json", to_json(analysis, job.ctx.findings, memo=job.figures))
     if job.reuse is None or job.reuse.inputs is None:
         return None
-    return _write_cache(job.tmp, job.reuse, analysis, job.figures, job.cached)
+    return _write_shards(job.tmp, job.reuse, analysis, job.figures, job.cached)
 
 
 def _pool_size(channels: int, todo: int) -> int:
@@ -706,7 +715,7 @@ def _fill(tmp: Path, analysis: SystemAnalysis, findings: list[Finding], env: jin
                cached if cached is not None else Cached())
     workers = _pool_size(len(analysis.channels), len(todo))
     if not workers:
-        listing = _data_and_cache(job)
+        shards = _data_and_shards(job)
         for rel, text in shared_pages(ctx, env, sections):
             _write(tmp, rel, text)
             tick(1, rel)
@@ -717,7 +726,7 @@ def _fill(tmp: Path, analysis: SystemAnalysis, findings: list[Finding], env: jin
         _JOB = job
         try:
             with multiprocessing.get_context("fork").Pool(workers) as pool:
-                side = pool.apply_async(_data_and_cache)
+                side = pool.apply_async(_data_and_shards)
                 pending = None
                 if workers > 1:
                     chunks = [todo[k:k + POOL_CHUNK] for k in range(0, len(todo), POOL_CHUNK)]
@@ -729,11 +738,15 @@ def _fill(tmp: Path, analysis: SystemAnalysis, findings: list[Finding], env: jin
                     for i in todo:
                         tick(1, _render_one(i, job))
                 else:
-                    for n in pending.get():
+                    for n, designs in pending.get():
+                        memo.remember(designs)
                         tick(n, "channels/")
-                listing = side.get()
+                shards = side.get()
         finally:
             _JOB = None
+    listing = None
+    if shards is not None and reuse is not None:
+        listing = {"shared": _write_shared(tmp, reuse, analysis), "shards": shards}
     _write(tmp, MARKER, MARKER_TEXT)
     return done, keys, listing
 
@@ -832,34 +845,32 @@ def _intact(out: Path, previous: dict[str, Any]) -> bool:
 
 
 @contextmanager
-def _collector_paused() -> Iterator[None]:
-    """Pause Python's cyclic garbage collector while the spec is loaded and analysed.
+def _collector_paused() -> Iterator[Callable[[], None]]:
+    """Pause Python's cyclic garbage collector for a build; yields ``settled``, to be called once the
+    spec is loaded, analysed and checked.
 
-    Loading builds one large object graph that lives until the build ends, and every automatic
-    full collection meanwhile walks all of it again: about a second at 10,000 channels (measured).
+    Loading builds one large object graph that lives until the build ends, and every automatic full
+    collection meanwhile walks all of it again (about a second at 10,000 channels, measured).
+    ``settled`` moves everything alive into the permanent generation (``gc.freeze``) before the
+    collector resumes: otherwise its first young collection would walk the millions of objects
+    allocated while it was paused, and later full ones again.  Frozen objects are also kept
+    unshared after the pool forks.  At the end they are unfrozen, so a long-lived process
+    (``specfold serve``) collects as usual between builds.
     """
     was_enabled = gc.isenabled()
     gc.disable()
-    try:
-        yield
-    finally:
+
+    def settled() -> None:
+        gc.freeze()
         if was_enabled:
             gc.enable()
 
-
-@contextmanager
-def _collector_frozen() -> Iterator[None]:
-    """Keep the objects alive now out of the collector's sight while the site is written.
-
-    The loaded and analysed spec holds no garbage cycles worth finding, yet every full collection
-    while pages are rendered would walk it again; ``gc.freeze`` also keeps its pages unshared after
-    the pool forks.  Unfrozen afterwards, so a long-lived process (``specfold serve``) collects as
-    usual between builds."""
-    gc.freeze()
     try:
-        yield
+        yield settled
     finally:
         gc.unfreeze()
+        if was_enabled:
+            gc.enable()
 
 
 def build(specs: Path | str, output: Path | str, progress: Progress | None = None,
@@ -880,13 +891,13 @@ def build(specs: Path | str, output: Path | str, progress: Progress | None = Non
         findings = [Finding(r[0], r[1], tuple(r[2]), r[3], r[4], r[5], r[6], r[7]) for r in previous["findings"]]
         return BuildSummary(out_path, int(previous["count"]), int(previous["channels"]), findings)
     reuse = Reuse(tool, inputs, previous, out_path.resolve())
-    with _collector_paused():
+    with _collector_paused() as settled:
         cached = reuse.load_cache()
-        remember_designs(cached.designs)
+        memo.remember(cached.designs)
         spec = load_spec(specs_path, known={rel: r.channel for rel, r in cached.results.items()},
                          known_system=cached.system)
         analysis = analyze(spec, known={r.channel.id: r for r in cached.results.values()})
         findings = run_rules(analysis)
-    with _collector_frozen():
+        settled()
         count = write_site(analysis, findings, out_path, specs_path, progress, reuse, cached)
     return BuildSummary(out_path, count, len(analysis.channels), findings)

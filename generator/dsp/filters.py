@@ -35,10 +35,12 @@ import math
 import warnings
 from dataclasses import dataclass
 from functools import lru_cache
-from typing import Any, overload
+from typing import overload
 
 import numpy as np
 from numpy.typing import NDArray
+
+from .memo import Memo
 
 FAMILIES = ("butterworth", "bessel", "chebyshev1", "chebyshev2", "elliptic")
 MAX_ORDER = 20
@@ -134,57 +136,28 @@ def _design_prototype(
 Prototype = tuple[NDArray[np.complex128], NDArray[np.complex128], float]
 PrototypeKey = tuple[str, int, float, float]
 
-_PROTOTYPES: dict[PrototypeKey, Prototype] = {}
-"""Every prototype designed (or remembered) in this process.  A handful of (family, order,
-ripple, stopband) combinations serve thousands of channels, so each is designed once."""
-
-
-def _prototype(family: str, order: int, ripple_db: float, stopband_db: float) -> Prototype:
-    """The prototype of :func:`_design_prototype`, designed once per process (or remembered)."""
-    key = (family, order, ripple_db, stopband_db)
-    found = _PROTOTYPES.get(key)
-    if found is None:
-        found = _PROTOTYPES[key] = _design_prototype(family, order, ripple_db, stopband_db)
-    return found
-
-
-def known_designs() -> dict[str, Any]:
-    """The prototypes and least orders found so far, as plain values: a build cache may keep them
-    so that a later process needs no scipy (whose import costs about a second) for the same
-    filters.  Only valid for the same scipy version."""
-    return {
-        "prototypes": {key: (tuple(complex(v) for v in z), tuple(complex(v) for v in p), k)
-                       for key, (z, p, k) in sorted(_PROTOTYPES.items())},
-        "least_orders": dict(sorted(_LEAST_ORDERS.items(), key=lambda item: repr(item[0]))),
-    }
-
 
 def _is_key(key: object, kinds: tuple[type, ...]) -> bool:
     return (isinstance(key, tuple) and len(key) == len(kinds) and key[0] in FAMILIES
             and all(type(v) is t for v, t in zip(key, kinds, strict=True)))
 
 
-def remember_designs(table: object) -> int:
-    """Take what :func:`known_designs` kept (computed by the same scipy); entries of the wrong
-    shape are ignored.  Returns how many were taken."""
-    if not isinstance(table, dict):
-        return 0
-    taken = 0
-    prototypes, orders = table.get("prototypes"), table.get("least_orders")
-    for key, value in prototypes.items() if isinstance(prototypes, dict) else ():
-        if (_is_key(key, (str, int, float, float)) and isinstance(value, tuple) and len(value) == 3
-                and type(value[2]) is float
-                and all(isinstance(v, tuple) and all(type(c) is complex for c in v) for v in value[:2])):
-            _PROTOTYPES.setdefault(key, (np.asarray(value[0], dtype=np.complex128),
-                                         np.asarray(value[1], dtype=np.complex128), value[2]))
-            taken += 1
-    for key, value in orders.items() if isinstance(orders, dict) else ():
-        if _is_key(key, (str, float, float, float)) and (
-                value is None or (isinstance(value, tuple) and len(value) == 2 and type(value[0]) is int
-                                  and type(value[1]) is float)):
-            _LEAST_ORDERS.setdefault(key, value)
-            taken += 1
-    return taken
+def _is_roots(value: object) -> bool:
+    return isinstance(value, np.ndarray) and value.dtype == np.complex128 and value.ndim == 1
+
+
+_PROTOTYPES: Memo[PrototypeKey, Prototype] = Memo(
+    "filter prototypes",
+    lambda key, v: (_is_key(key, (str, int, float, float)) and isinstance(v, tuple) and len(v) == 3
+                    and _is_roots(v[0]) and _is_roots(v[1]) and type(v[2]) is float))
+"""Every prototype designed (or remembered) in this process: a handful of (family, order, ripple,
+stopband) combinations serve thousands of channels."""
+
+
+def _prototype(family: str, order: int, ripple_db: float, stopband_db: float) -> Prototype:
+    """The prototype of :func:`_design_prototype`, designed once per process (or remembered)."""
+    return _PROTOTYPES.get((family, order, ripple_db, stopband_db),
+                           lambda: _design_prototype(family, order, ripple_db, stopband_db))
 
 
 @lru_cache(maxsize=65536)
@@ -328,8 +301,19 @@ def _meets(family: str, order: int, corner: float, ripple: float, stop: float,
     return bool(attenuation_db(filt, f_pass) <= ap + tol and attenuation_db(filt, f_stop) >= as_ - tol * max(1.0, as_))
 
 
-@lru_cache(maxsize=16384)
+_LOSS_POINTS: Memo[tuple[str, int, float, float, float], float | None] = Memo(
+    "normalised loss points",
+    lambda key, v: (_is_key(key, (str, int, float, float, float)) and (v is None or type(v) is float)))
+"""Every solution of :func:`_find_normalised_loss` in this process (or remembered)."""
+
+
 def _solve_normalised_loss(family: str, order: int, ripple: float, stop: float, loss_db: float) -> float | None:
+    """:func:`_find_normalised_loss`, solved once per process (or remembered)."""
+    return _LOSS_POINTS.get((family, order, ripple, stop, loss_db),
+                            lambda: _find_normalised_loss(family, order, ripple, stop, loss_db))
+
+
+def _find_normalised_loss(family: str, order: int, ripple: float, stop: float, loss_db: float) -> float | None:
     """Normalised frequency x where a monotonic-passband prototype's loss equals ``loss_db``."""
     z, p, k = _prototype(family, order, ripple, stop)
 
@@ -344,16 +328,16 @@ def _solve_normalised_loss(family: str, order: int, ripple: float, stop: float, 
     return math.exp(float(optimize.brentq(g, lo, hi, xtol=1e-13, rtol=1e-13)))
 
 
-_LEAST_ORDERS: dict[tuple[str, float, float, float], tuple[int, float] | None] = {}
+_LEAST_ORDERS: Memo[tuple[str, float, float, float], tuple[int, float] | None] = Memo(
+    "least orders",
+    lambda key, v: _is_key(key, (str, float, float, float)) and (
+        v is None or (isinstance(v, tuple) and len(v) == 2 and type(v[0]) is int and type(v[1]) is float)))
 """Every least order found in this process (or remembered), by (family, ratio, Ap, As)."""
 
 
 def _least_order_normalised(family: str, ratio: float, ap: float, as_: float) -> tuple[int, float] | None:
     """:func:`_find_least_order_normalised`, found once per process (or remembered)."""
-    key = (family, ratio, ap, as_)
-    if key not in _LEAST_ORDERS:
-        _LEAST_ORDERS[key] = _find_least_order_normalised(family, ratio, ap, as_)
-    return _LEAST_ORDERS[key]
+    return _LEAST_ORDERS.get((family, ratio, ap, as_), lambda: _find_least_order_normalised(family, ratio, ap, as_))
 
 
 def _find_least_order_normalised(family: str, ratio: float, ap: float, as_: float) -> tuple[int, float] | None:

@@ -21,9 +21,10 @@ References
 from __future__ import annotations
 
 import math
-from functools import lru_cache
 
 import numpy as np
+
+from .memo import Memo
 
 # 20 log10(2) and 10 log10(1.5): the exact constants behind "6.02 N + 1.76 dB" [MT-001].
 _DB_PER_BIT = 20.0 * math.log10(2.0)
@@ -101,8 +102,16 @@ def filter_needed_at_image_db(target_db: float, f_hz: float, rate_hz: float) -> 
     return target_db + image_level_after_hold_db(f_hz, rate_hz)
 
 
-@lru_cache(maxsize=4096)
+_HOLD_FRACTIONS: Memo[float, float] = Memo(
+    "hold fractions", lambda key, value: type(key) is float and type(value) is float and 0.0 <= value <= 0.5)
+
+
 def max_hold_fraction(loss_db: float) -> float:
+    """:func:`_solve_hold_fraction`, solved once per process (or remembered) for each loss."""
+    return _HOLD_FRACTIONS.get(float(loss_db), lambda: _solve_hold_fraction(float(loss_db)))
+
+
+def _solve_hold_fraction(loss_db: float) -> float:
     """Largest f/fs at which the hold loses no more than ``loss_db`` (> 0) dB.
 
     Solves -20 log10 |sinc(x)| = loss for x in (0, 0.5]; the loss rises monotonically over that
