@@ -69,7 +69,7 @@ import shutil
 import stat
 import tempfile
 from collections.abc import Callable, Iterator
-from contextlib import contextmanager
+from contextlib import ExitStack, contextmanager
 from dataclasses import dataclass, field
 from pathlib import Path
 from types import MappingProxyType
@@ -193,25 +193,37 @@ def section_html(section: render.BookSection, ctx: render.Context, env: jinja2.E
     return env.get_template("book.html").render(page=view, frame=view.frame)
 
 
-def shared_pages(ctx: render.Context, env: jinja2.Environment,
-                 sections: tuple[render.BookSection, ...] = ()) -> Iterator[tuple[str, str]]:
-    """The five pages that span all channels: rendered again on every build that changes anything.
+SHARED_PAGES = ("index.html", "budgets.html", "findings.html", "rules.html", "book.html")
+"""The pages that span all channels: rendered again on every build that changes anything."""
 
-    With ``sections`` (a split book) ``book.html`` is the book's index; the sections are rendered
-    like channel pages."""
-    rules = all_rules()
+
+def shared_page(rel: str, ctx: render.Context, env: jinja2.Environment,
+                sections: tuple[render.BookSection, ...] = ()) -> str:
+    """One of :data:`SHARED_PAGES`.  With ``sections`` (a split book) ``book.html`` is the book's
+    index; the sections are rendered like channel pages."""
 
     def page(template: str, view: Any) -> str:
         return env.get_template(template).render(page=view, frame=view.frame)
 
-    yield "index.html", page("overview.html", render.overview_page(ctx))
-    yield "budgets.html", page("budgets.html", render.budgets_page(ctx))
-    yield "findings.html", page("findings.html", render.findings_page(ctx, rules))
-    yield "rules.html", page("rules.html", render.rules_page(ctx, rules))
-    if sections:
-        yield "book.html", page("book_index.html", render.book_index_page(ctx, sections))
-    else:
-        yield "book.html", page("book.html", render.book_page(ctx))
+    if rel == "index.html":
+        return page("overview.html", render.overview_page(ctx))
+    if rel == "budgets.html":
+        return page("budgets.html", render.budgets_page(ctx))
+    if rel == "findings.html":
+        return page("findings.html", render.findings_page(ctx, all_rules()))
+    if rel == "rules.html":
+        return page("rules.html", render.rules_page(ctx, all_rules()))
+    if rel == "book.html":
+        return page("book_index.html", render.book_index_page(ctx, sections)) if sections else page(
+            "book.html", render.book_page(ctx))
+    raise ValueError(f"no shared page {rel!r}")
+
+
+def shared_pages(ctx: render.Context, env: jinja2.Environment,
+                 sections: tuple[render.BookSection, ...] = ()) -> Iterator[tuple[str, str]]:
+    """Every one of :data:`SHARED_PAGES` as (relative path, text)."""
+    for rel in SHARED_PAGES:
+        yield rel, shared_page(rel, ctx, env, sections)
 
 
 def page_count(analysis: SystemAnalysis) -> int:
@@ -634,12 +646,9 @@ def _render_chunk(indices: list[int]) -> tuple[int, dict[str, dict[object, objec
     return len(indices), memo.known()
 
 
-def _data_and_shards(job: _Job | None = None) -> dict[str, str] | None:
-    """Write data/spec.json and, with a reuse, the cache's channel shards; returns their listing.
-
-    One task, since the shards keep the figures text that writing spec.json encodes."""
-    job = job if job is not None else _JOB
-    assert job is not None
+def _data_and_shards(job: _Job) -> dict[str, str] | None:
+    """Write data/spec.json, then, with a reuse, the cache's channel shards (they keep the figures
+    text writing spec.json encodes); returns the shards' listing."""
     analysis = job.ctx.analysis
     _write(job.tmp, "data/spec.json", to_json(analysis, job.ctx.findings, memo=job.figures))
     if job.reuse is None or job.reuse.inputs is None:
@@ -647,16 +656,22 @@ def _data_and_shards(job: _Job | None = None) -> dict[str, str] | None:
     return _write_shards(job.tmp, job.reuse, analysis, job.figures, job.cached)
 
 
-def _pool_size(channels: int, todo: int) -> int:
-    """Worker processes for a build: none for a small system or without fork; one for spec.json and
-    the cache while the parent renders (a large system with few pages to render); else a worker
-    per CPU (at most 8), which also render channel pages."""
-    if channels < POOL_MIN_PAGES or "fork" not in multiprocessing.get_all_start_methods():
-        return 0
+def _side() -> dict[str, str] | None:
+    """The side worker's task (measured: adding shared pages to it made it the slower side, its
+    copy-on-write pages of the forked heap cost more than rendering them in the parent)."""
+    assert _JOB is not None
+    return _data_and_shards(_JOB)
+
+
+def _forking(channels: int) -> bool:
+    """Whether a build of this many channels shares its work with forked workers."""
+    return channels >= POOL_MIN_PAGES and "fork" in multiprocessing.get_all_start_methods()
+
+
+def _pool_size(todo: int) -> int:
+    """Workers rendering channel pages: a worker per CPU (at most 8) for many pages, else none."""
     cpus = len(os.sched_getaffinity(0)) if hasattr(os, "sched_getaffinity") else (os.cpu_count() or 1)
-    if todo < POOL_MIN_PAGES or cpus < 2:
-        return 1
-    return min(cpus, 8)
+    return min(cpus, 8) if todo >= POOL_MIN_PAGES and cpus > 1 else 0
 
 
 def _fill(tmp: Path, analysis: SystemAnalysis, findings: list[Finding], env: jinja2.Environment,
@@ -685,13 +700,57 @@ def _fill(tmp: Path, analysis: SystemAnalysis, findings: list[Finding], env: jin
             progress(done, total, rel)
 
     sections = render.book_sections(analysis)
-    keys: dict[str, str] = {}
-    todo: list[int] = []
-    channel_keys: list[str | None] = []
     (tmp / "channels").mkdir(exist_ok=True)
     if sections:
         (tmp / "book").mkdir(exist_ok=True)
-    for i, result in enumerate(analysis.channels):
+    job = _Job(tmp, ctx, env, sections, figures if figures is not None else {}, reuse,
+               cached if cached is not None else Cached())
+    with ExitStack() as stack:
+        side = None
+        if _forking(len(analysis.channels)):
+            # a side worker writes spec.json and the cache shards meanwhile
+            _JOB = job
+            stack.callback(_clear_job)
+            side = stack.enter_context(multiprocessing.get_context("fork").Pool(1)).apply_async(_side)
+        keys, todo = _carry_pages(job, tick)
+        workers = _pool_size(len(todo)) if side is not None else 0
+        pending = None
+        if workers:
+            chunks = [todo[k:k + POOL_CHUNK] for k in range(0, len(todo), POOL_CHUNK)]
+            pool = stack.enter_context(multiprocessing.get_context("fork").Pool(workers))
+            pending = pool.map_async(_render_chunk, chunks, chunksize=1)
+        for rel in SHARED_PAGES:
+            _write(tmp, rel, shared_page(rel, ctx, env, sections))
+            tick(1, rel)
+        if pending is None:
+            for i in todo:
+                tick(1, _render_one(i, job))
+        else:
+            for n, designs in pending.get():
+                memo.remember(designs)
+                tick(n, "channels/")
+        shards = _data_and_shards(job) if side is None else side.get()
+    listing = None
+    if shards is not None and reuse is not None:
+        listing = {"shared": _write_shared(tmp, reuse, analysis), "shards": shards}
+    _write(tmp, MARKER, MARKER_TEXT)
+    return done, keys, listing
+
+
+def _clear_job() -> None:
+    global _JOB
+    _JOB = None
+
+
+def _carry_pages(job: _Job, tick: Callable[[int, str], None]) -> tuple[dict[str, str], list[int]]:
+    """Key every channel page and book section, carry the unchanged ones from the current site;
+    returns the keys and the items still to render (channel indices, then sections after them)."""
+    reuse, ctx, tmp = job.reuse, job.ctx, job.tmp
+    channels = ctx.analysis.channels
+    keys: dict[str, str] = {}
+    todo: list[int] = []
+    channel_keys: list[str | None] = []
+    for i, result in enumerate(channels):
         rel = ctx.paths[result.channel.id]
         key = reuse.page_key(result, ctx, rel) if reuse is not None else None
         channel_keys.append(key)
@@ -702,7 +761,7 @@ def _fill(tmp: Path, analysis: SystemAnalysis, findings: list[Finding], env: jin
             tick(1, rel)
         else:
             todo.append(i)
-    for j, section in enumerate(sections):
+    for j, section in enumerate(job.sections):
         key = reuse.section_key(section, channel_keys) if reuse is not None else None
         if key is not None:
             keys[section.path] = key
@@ -710,45 +769,8 @@ def _fill(tmp: Path, analysis: SystemAnalysis, findings: list[Finding], env: jin
             reuse.reused += 1
             tick(1, section.path)
         else:
-            todo.append(len(analysis.channels) + j)
-    job = _Job(tmp, ctx, env, sections, figures if figures is not None else {}, reuse,
-               cached if cached is not None else Cached())
-    workers = _pool_size(len(analysis.channels), len(todo))
-    if not workers:
-        shards = _data_and_shards(job)
-        for rel, text in shared_pages(ctx, env, sections):
-            _write(tmp, rel, text)
-            tick(1, rel)
-        for i in todo:
-            tick(1, _render_one(i, job))
-    else:
-        # the workers write spec.json and the cache, and render channel pages; the parent the shared pages
-        _JOB = job
-        try:
-            with multiprocessing.get_context("fork").Pool(workers) as pool:
-                side = pool.apply_async(_data_and_shards)
-                pending = None
-                if workers > 1:
-                    chunks = [todo[k:k + POOL_CHUNK] for k in range(0, len(todo), POOL_CHUNK)]
-                    pending = pool.map_async(_render_chunk, chunks, chunksize=1)
-                for rel, text in shared_pages(ctx, env, sections):
-                    _write(tmp, rel, text)
-                    tick(1, rel)
-                if pending is None:
-                    for i in todo:
-                        tick(1, _render_one(i, job))
-                else:
-                    for n, designs in pending.get():
-                        memo.remember(designs)
-                        tick(n, "channels/")
-                shards = side.get()
-        finally:
-            _JOB = None
-    listing = None
-    if shards is not None and reuse is not None:
-        listing = {"shared": _write_shared(tmp, reuse, analysis), "shards": shards}
-    _write(tmp, MARKER, MARKER_TEXT)
-    return done, keys, listing
+            todo.append(len(channels) + j)
+    return keys, todo
 
 
 def _swap(tmp: Path, out: Path) -> None:

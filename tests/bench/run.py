@@ -3,7 +3,8 @@
     python -m tests.bench.run --sizes 100 1000 10000 [--runs 3] [--work DIR] [--json FILE]
 
 For each size N a synthetic tree is written (:mod:`tests.bench.synth`), then every figure is the
-median wall time of ``--runs`` runs of a child process:
+median wall time of ``--runs`` runs of a child process (each started after ``os.sync()``, so the
+write-back of a previous build's hundreds of megabytes does not land in the next one's time):
 
 baseline     the least work any publisher of the same channel pages must do (:mod:`tests.bench.baseline`)
 check        ``specfold check`` (text report to /dev/null)
@@ -49,6 +50,7 @@ CACHE = ".specfold-cache"
 def _run(args: list[str], mem_file: Path | None = None) -> tuple[float, int]:
     """Run one child from the repository root; returns (wall seconds, peak RSS in KiB or 0)."""
     cmd = [sys.executable, *args]
+    os.sync()  # the previous run's writes flushed first: their write-back would slow this run's reads
     if mem_file is not None and TIME.exists():
         cmd = [str(TIME), "-f", "%M", "-o", str(mem_file), *cmd]
     start = time.perf_counter()
