@@ -32,21 +32,13 @@ fixed separators, and no page carries a time stamp, so two builds are byte-ident
 
 Incremental builds
 ------------------
-The site carries ``.specfold-cache/``: ``manifest.json`` holds a key for the tool (version,
-generator source, templates, the plotly bundle, library versions), a key for the inputs
-(system.toml and every channel file), a key per channel page (tool, system.toml, the channel
-file, its page path, its findings and the pages they link to) and the SHA-256 of every cache
-file; ``shared.pickle`` holds system.toml as loaded and the filter designs found (so a rebuild
-after a note edit imports no scipy); ``channels-NN.pickle`` (64 shards by a hash of the file's
-path) hold each channel as loaded and analysed, with its figures as JSON text.  A build whose
-tool and inputs keys match the current site's manifest changes nothing and returns at once.
-Otherwise only changed files are parsed and analysed (a cache file is unpickled only when its
-SHA-256 is the manifest's), budgets and rules run again (they span channels), spec.json is
-assembled from the kept figures text, shared pages are rendered again, a channel page whose key
-is unchanged is hard-linked (or copied) from the current site, and an unchanged cache shard is
-linked too.  The manifest and cache move with the site in the same swap, so they always describe
-the folder they sit in.  The cache's bytes may differ between builds of the same inputs (object
-sharing, set order under hash randomisation); the published pages never do.
+The site carries its build cache (:mod:`generator.cache`).  A build whose tool and inputs keys
+match the current site's manifest changes nothing and returns at once.  Otherwise only changed
+files are parsed and analysed, budgets and rules run again (they span channels), spec.json is
+assembled from the kept figures text, the shared pages are rendered again, and a channel page or
+book section whose key is unchanged is hard-linked (or copied) from the current site, as is an
+unchanged cache shard.  The manifest and cache move with the site in the same swap, so they
+always describe the folder they sit in.
 
 On a large system the work after the checks is shared with forked workers: one writes spec.json
 and the cache while the parent renders the shared pages, and with many pages to render a worker
@@ -55,34 +47,40 @@ per CPU renders channel pages in coarse chunks.
 
 from __future__ import annotations
 
-import copyreg
 import gc
-import hashlib
 import importlib.metadata
 import importlib.resources
-import io
-import json
 import multiprocessing
 import os
-import pickle
 import shutil
-import stat
 import tempfile
 from collections.abc import Callable, Iterator
 from contextlib import ExitStack, contextmanager
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from pathlib import Path
-from types import MappingProxyType
 from typing import Any
 
 import jinja2
 
-from . import __version__, render
+from . import render
 from .analysis import ChannelResult, SystemAnalysis, analyze
+from .cache import (
+    MANIFEST,
+    Cached,
+    Reuse,
+    input_keys,
+    manifest_findings,
+    manifest_text,
+    read_manifest,
+    tool_key,
+    unchanged,
+    write_shards,
+    write_shared,
+)
 from .dsp import memo
 from .errors import SpecError
-from .load import SYSTEM_FILE, channel_files, load_spec
-from .model import System
+from .files import carry, inside, regular_file, write
+from .load import load_spec
 from .propose import flagged_channels, propose
 from .report import to_json
 from .rules import Finding, all_rules, run_rules
@@ -98,19 +96,6 @@ KEPT = (".gitignore",)
 TEMPLATES = Path(__file__).resolve().parent.parent / "site_templates"
 STATIC = ("site.css", "site.js")
 PLOTLY_ASSET = "assets/plotly.min.js"
-CACHE = ".specfold-cache"
-MANIFEST = f"{CACHE}/manifest.json"
-MANIFEST_FORMAT = 2
-SHARED_CACHE = f"{CACHE}/shared.pickle"
-"""system.toml as loaded, and the filter prototypes and least orders found: a rebuild under the
-same system.toml does not parse it again, nor import scipy for filters it has already met."""
-RESULT_SHARDS = 64
-"""Every channel as loaded and analysed with its figures as JSON text, keyed by
-its file, in this many pickle files by a hash of the file's path: a rebuild neither parses nor
-analyses a file whose key (tool, system.toml, the file) is unchanged, and writes again only the
-shards whose entries changed."""
-LIBRARIES = ("numpy", "scipy", "jinja2", "markdown", "nh3", "plotly", "markupsafe")
-"""Installed libraries whose versions are part of the tool key."""
 POOL_MIN_PAGES = 300
 """Fewer channel pages than this to render are rendered in-process (a pool would not pay off)."""
 POOL_CHUNK = 100
@@ -235,9 +220,6 @@ def page_count(analysis: SystemAnalysis) -> int:
 # ---------------------------------------------------------------------------------------------
 
 
-def _inside(path: Path, folder: Path) -> bool:
-    return path == folder or folder in path.parents
-
 
 def check_output(output: Path, specs: Path) -> None:
     """Refuse an output folder the builder must not replace (a SpecError saying why)."""
@@ -249,7 +231,7 @@ def check_output(output: Path, specs: Path) -> None:
     if out == Path.home().resolve():
         raise SpecError(f"refusing to build into {output}: it is your home folder; "
                         "choose a folder of its own, e.g. -o output")
-    if _inside(spec_root, out):
+    if inside(spec_root, out):
         raise SpecError(f"refusing to build into {output}: it is (or contains) the specs folder {specs}; "
                         "choose another output folder, e.g. -o output")
     if (out / ".git").exists() or (out / "pyproject.toml").exists():
@@ -259,7 +241,7 @@ def check_output(output: Path, specs: Path) -> None:
         raise SpecError(f"refusing to build into {output}: it is a symbolic link; name the real folder")
     if out.exists() and not out.is_dir():
         raise SpecError(f"refusing to build into {output}: it is a file, not a folder")
-    if out.is_dir() and not _regular_file(out / MARKER):
+    if out.is_dir() and not regular_file(out / MARKER):
         foreign = sorted(p.name for p in out.iterdir() if p.name not in KEPT)
         if foreign:
             shown = ", ".join(foreign[:3]) + (" ..." if len(foreign) > 3 else "")
@@ -268,10 +250,6 @@ def check_output(output: Path, specs: Path) -> None:
     if not out.parent.is_dir():
         raise SpecError(f"cannot build into {output}: its parent folder {out.parent} does not exist")
 
-
-def _regular_file(path: Path) -> bool:
-    """A plain file, not a symbolic link to one: links in an old site are never followed."""
-    return path.is_file() and not path.is_symlink()
 
 
 def _remove_tree(folder: Path) -> None:
@@ -311,295 +289,23 @@ def _clean_leftovers(out: Path) -> None:
         if not entry.name.startswith(prefix) or entry.is_symlink() or not entry.is_dir():
             continue
         kind = entry.name[len(prefix):].split("-", 1)[0]
-        if kind == "building" and _regular_file(entry / BUILDING_MARKER):
+        if kind == "building" and regular_file(entry / BUILDING_MARKER):
             text = (entry / BUILDING_MARKER).read_text(encoding="utf-8", errors="replace").strip()
             if text.isdigit() and _alive(int(text)):
                 continue
             shutil.rmtree(entry, ignore_errors=True)
-        elif kind == "old" and _regular_file(entry / MARKER):
+        elif kind == "old" and regular_file(entry / MARKER):
             if not out.exists() and not out.is_symlink():
                 os.replace(entry, out)  # killed between the two renames of a swap: the old site comes back
                 continue
             shutil.rmtree(entry, ignore_errors=True)
 
 
-def _write(root: Path, rel: str, data: str | bytes) -> None:
-    target = (root / rel).resolve()
-    if not _inside(target, root) or target == root:
-        raise SpecError(f"refusing to write {rel!r}: it would land outside the site folder")
-    target.parent.mkdir(parents=True, exist_ok=True)
-    if isinstance(data, str):
-        target.write_text(data, encoding="utf-8", newline="\n")
-    else:
-        target.write_bytes(data)
-
 
 # ---------------------------------------------------------------------------------------------
 # Keys and the manifest
 # ---------------------------------------------------------------------------------------------
 
-
-def _digest(*parts: str | bytes) -> str:
-    h = hashlib.sha256()
-    for part in parts:
-        data = part.encode("utf-8") if isinstance(part, str) else part
-        h.update(len(data).to_bytes(8, "little"))
-        h.update(data)
-    return h.hexdigest()
-
-
-def tool_key(templates: Path = TEMPLATES) -> str:
-    """What the tool contributes to every page: version, generator source, templates, plotly bundle,
-    and the versions of the libraries that compute or write part of it."""
-    parts: list[str | bytes] = [__version__]
-    package = Path(__file__).resolve().parent
-    for folder in (package, templates):
-        for path in sorted(folder.rglob("*")):
-            if path.is_file() and path.suffix in (".py", ".html", ".css", ".js"):
-                parts += [path.relative_to(folder).as_posix(), path.read_bytes()]
-    bundle = plotly_bundle().stat()
-    parts.append(f"plotly {bundle.st_size} {bundle.st_mtime_ns}")
-    for library in LIBRARIES:  # what they compute or write reaches the pages and the cache
-        try:
-            parts.append(f"{library} {importlib.metadata.version(library)}")
-        except importlib.metadata.PackageNotFoundError:
-            parts.append(f"{library} unknown")
-    return _digest(*parts)
-
-
-@dataclass(frozen=True)
-class Inputs:
-    """Keys of the spec tree: the whole of it, system.toml, and each channel file by its path."""
-
-    tree: str
-    system: str
-    files: dict[str, str]
-
-
-def input_keys(specs: Path) -> Inputs | None:
-    """Hash every file the build reads; None when one cannot be read (no shortcut is taken then)."""
-    try:
-        system = _digest((specs / SYSTEM_FILE).read_bytes())
-        files = {p.relative_to(specs).as_posix(): _digest(_read(str(p))) for p in channel_files(specs)}
-    except OSError:
-        return None
-    return Inputs(_digest(system, *(f"{k} {v}" for k, v in files.items())), system, files)
-
-
-def _read(path: str) -> bytes:
-    """A whole file, read without buffered-IO objects (10,000 of them cost a tenth of a second)."""
-    fd = os.open(path, os.O_RDONLY | getattr(os, "O_BINARY", 0))
-    try:
-        chunks = []
-        while chunk := os.read(fd, 1 << 20):
-            chunks.append(chunk)
-        return b"".join(chunks)
-    finally:
-        os.close(fd)
-
-
-def read_manifest(output: Path) -> dict[str, Any] | None:
-    """The manifest of the site in ``output``, or None when there is no usable one."""
-    path = output / MANIFEST
-    if not (output / MARKER).is_file() or not path.is_file():
-        return None
-    try:
-        data = json.loads(path.read_text(encoding="utf-8"))
-    except (OSError, ValueError):
-        return None
-    if not isinstance(data, dict) or data.get("format") != MANIFEST_FORMAT or not isinstance(data.get("pages"), dict):
-        return None
-    return data
-
-
-@dataclass
-class Cached:
-    """What a build took from the current site's cache."""
-
-    results: dict[str, ChannelResult] = field(default_factory=dict)
-    """channel file -> its loaded channel and per-channel analysis, for files whose key holds"""
-    figures: dict[str, str] = field(default_factory=dict)
-    """channel id -> its figures as JSON text (the memo of :func:`report.to_json`)"""
-    system: System | None = None
-    designs: object = None
-    shards: dict[str, tuple[str, list[tuple[str, str]]]] = field(default_factory=dict)
-    """shard file -> (its SHA-256, the (file, key) pairs it held)"""
-
-
-@dataclass
-class Reuse:
-    """What a build may take from the site it replaces."""
-
-    tool: str
-    inputs: Inputs | None
-    previous: dict[str, Any] | None
-    old_site: Path
-    reused: int = 0
-
-    def page_key(self, result: ChannelResult, ctx: render.Context, rel: str) -> str | None:
-        if self.inputs is None:
-            return None
-        ch = result.channel
-        file_key = self.inputs.files.get(ch.source.file)
-        if file_key is None:
-            return None
-        linked = [(repr(f), [ctx.paths.get(c, "") for c in f.channels]) for f in ctx.by_channel.get(ch.id, ())]
-        return _digest(self.tool, self.inputs.system, ch.source.file, file_key, rel, ctx.status[ch.id],
-                       repr(result.budget), repr(linked), repr(ctx.proposals.get(ch.id)))
-
-    def section_key(self, section: render.BookSection, channel_keys: list[str | None]) -> str | None:
-        """A book section's key: its path, its label and the keys of its channels' pages (which
-        cover everything a sheet shows)."""
-        members = [channel_keys[i] for i in section.channels]
-        if any(k is None for k in members):
-            return None
-        return _digest(self.tool, "book section", section.path, section.label, *(k or "" for k in members))
-
-    def result_key(self, rel: str) -> str | None:
-        """Key of one channel file's loaded channel and per-channel analysis."""
-        if self.inputs is None or rel not in self.inputs.files:
-            return None
-        return _digest(self.tool, "channel result", self.inputs.system, rel, self.inputs.files[rel])
-
-    def system_key(self) -> str | None:
-        return None if self.inputs is None else _digest(self.tool, "system", self.inputs.system)
-
-    def _unpickle(self, rel: str, digest: object) -> Any:
-        """A cache file of the current site, unpickled only when it is the very file its manifest
-        names (by SHA-256); None when it is missing, damaged or not that file."""
-        path = self.old_site / rel
-        if self.previous is None or not isinstance(digest, str) or not _regular_file(path):
-            return None
-        try:
-            data = path.read_bytes()
-            if hashlib.sha256(data).hexdigest() != digest:
-                return None  # not the file this site's manifest wrote
-            return pickle.loads(data)  # written by this tool into its own site, checked above
-        except Exception:  # a damaged cache only means parsing again
-            return None
-
-    def load_cache(self) -> Cached:
-        """What the current site's cache still holds for this build: the loaded system.toml (when
-        it is unchanged), the filter prototypes, and the channels whose keys still hold."""
-        cached = Cached()
-        listed = self.previous.get("cache") if self.previous is not None else None
-        if not isinstance(listed, dict):
-            return cached
-        shared = self._unpickle(SHARED_CACHE, listed.get("shared"))
-        if isinstance(shared, dict):
-            system = shared.get("system")
-            if isinstance(system, tuple) and len(system) == 2 and system[0] == self.system_key():
-                cached.system = system[1] if isinstance(system[1], System) else None
-            cached.designs = shared.get("designs")
-        shards = listed.get("shards")
-        for name, digest in sorted(shards.items()) if isinstance(shards, dict) else ():
-            entries = self._unpickle(name, digest) if isinstance(name, str) else None
-            if not isinstance(entries, dict):
-                continue
-            held: list[tuple[str, str]] = []
-            for rel, entry in entries.items():
-                if not (isinstance(entry, tuple) and len(entry) == 3 and isinstance(entry[1], ChannelResult)
-                        and isinstance(entry[2], str)):
-                    continue
-                held.append((rel, entry[0]))
-                if entry[0] == self.result_key(rel):
-                    cached.results[rel] = entry[1]
-                    cached.figures[entry[1].channel.id] = entry[2]
-            cached.shards[name] = (digest, held)
-        return cached
-
-    def take(self, rel: str, key: str | None, tmp: Path) -> bool:
-        """Link (or copy) an unchanged page from the current site; False when it must be rendered."""
-        if key is None or self.previous is None or self.previous["pages"].get(rel) != key:
-            return False
-        return _carry(self.old_site / rel, tmp / rel)
-
-
-def _carry(source: Path, target: Path) -> bool:
-    """Hard-link (or else copy) a regular file of the current site into the new one; False when
-    ``source`` is not a regular file (a link is never carried) or neither works."""
-    try:
-        if not stat.S_ISREG(os.lstat(source).st_mode):
-            return False
-    except OSError:
-        return False
-    try:
-        os.link(source, target, follow_symlinks=False)
-    except FileNotFoundError:
-        target.parent.mkdir(parents=True, exist_ok=True)
-        return _carry_again(source, target)
-    except OSError:
-        return _copy(source, target)
-    return True
-
-
-def _carry_again(source: Path, target: Path) -> bool:
-    try:
-        os.link(source, target, follow_symlinks=False)
-    except OSError:
-        return _copy(source, target)
-    return True
-
-
-def _copy(source: Path, target: Path) -> bool:
-    try:
-        shutil.copyfile(source, target, follow_symlinks=False)
-    except OSError:
-        return False
-    return True
-
-
-def _proxy(items: dict[str, Any]) -> MappingProxyType[str, Any]:
-    return MappingProxyType(items)
-
-
-def _pickled(value: object) -> bytes:
-    buffer = io.BytesIO()
-    pickler = pickle.Pickler(buffer, protocol=pickle.HIGHEST_PROTOCOL)
-    table = copyreg.dispatch_table.copy()
-    table[MappingProxyType] = lambda m: (_proxy, (dict(m),))
-    pickler.dispatch_table = table
-    pickler.dump(value)
-    return buffer.getvalue()
-
-
-def shard_of(rel: str) -> str:
-    """The cache file holding the channel file ``rel`` (a stable hash of its path)."""
-    return f"{CACHE}/channels-{hashlib.sha256(rel.encode('utf-8')).digest()[0] % RESULT_SHARDS:02d}.pickle"
-
-
-def _write_shards(tmp: Path, reuse: Reuse, analysis: SystemAnalysis, figures: dict[str, str],
-                  cached: Cached) -> dict[str, str]:
-    """Write the channel shards of the build cache into ``tmp``; returns file -> SHA-256.
-
-    A shard whose entries are the very ones read from the current site is carried over (linked)
-    rather than pickled again."""
-    shards: dict[str, dict[str, tuple[str, ChannelResult, str]]] = {}
-    for r in analysis.channels:
-        rel = r.channel.source.file
-        key = reuse.result_key(rel)
-        if key is not None and r.channel.id in figures:
-            shards.setdefault(shard_of(rel), {})[rel] = (key, r, figures[r.channel.id])
-    listing: dict[str, str] = {}
-    for name, entries in sorted(shards.items()):
-        old = cached.shards.get(name)
-        if (old is not None and old[1] == [(rel, e[0]) for rel, e in entries.items()]
-                and _carry(reuse.old_site / name, tmp / name)):
-            listing[name] = old[0]
-            continue
-        data = _pickled(entries)
-        _write(tmp, name, data)
-        listing[name] = hashlib.sha256(data).hexdigest()
-    return listing
-
-
-def _write_shared(tmp: Path, reuse: Reuse, analysis: SystemAnalysis) -> str:
-    """Write the loaded system and this process's numerical memos (``dsp.memo``) into ``tmp``;
-    returns the file's SHA-256.  Written last, once every page (and with it every chart's filter
-    designs) is done."""
-    data = _pickled({"system": (reuse.system_key(), analysis.spec.system), "designs": memo.known()})
-    _write(tmp, SHARED_CACHE, data)
-    return hashlib.sha256(data).hexdigest()
 
 
 # ---------------------------------------------------------------------------------------------
@@ -629,11 +335,11 @@ def _render_one(i: int, job: _Job) -> str:
     if i < n:
         result = job.ctx.analysis.channels[i]
         rel = job.ctx.paths[result.channel.id]
-        _write(job.tmp, rel, channel_html(result, job.ctx, job.env))
+        write(job.tmp, rel, channel_html(result, job.ctx, job.env))
     else:
         section = job.sections[i - n]
         rel = section.path
-        _write(job.tmp, rel, section_html(section, job.ctx, job.env))
+        write(job.tmp, rel, section_html(section, job.ctx, job.env))
     return rel
 
 
@@ -650,10 +356,10 @@ def _data_and_shards(job: _Job) -> dict[str, str] | None:
     """Write data/spec.json, then, with a reuse, the cache's channel shards (they keep the figures
     text writing spec.json encodes); returns the shards' listing."""
     analysis = job.ctx.analysis
-    _write(job.tmp, "data/spec.json", to_json(analysis, job.ctx.findings, memo=job.figures))
+    write(job.tmp, "data/spec.json", to_json(analysis, job.ctx.findings, memo=job.figures))
     if job.reuse is None or job.reuse.inputs is None:
         return None
-    return _write_shards(job.tmp, job.reuse, analysis, job.figures, job.cached)
+    return write_shards(job.tmp, job.reuse, analysis, job.figures, job.cached)
 
 
 def _side() -> dict[str, str] | None:
@@ -687,7 +393,7 @@ def _fill(tmp: Path, analysis: SystemAnalysis, findings: list[Finding], env: jin
     for name in STATIC:
         shutil.copyfile(TEMPLATES / "static" / name, assets / name)
     old_bundle = reuse.old_site / PLOTLY_ASSET if reuse is not None and reuse.previous is not None else None
-    if old_bundle is None or not _carry(old_bundle, tmp / PLOTLY_ASSET):
+    if old_bundle is None or not carry(old_bundle, tmp / PLOTLY_ASSET):
         shutil.copyfile(plotly_bundle(), tmp / PLOTLY_ASSET)
     ctx = _context(analysis, findings)
     total = page_count(analysis)
@@ -720,7 +426,7 @@ def _fill(tmp: Path, analysis: SystemAnalysis, findings: list[Finding], env: jin
             pool = stack.enter_context(multiprocessing.get_context("fork").Pool(workers))
             pending = pool.map_async(_render_chunk, chunks, chunksize=1)
         for rel in SHARED_PAGES:
-            _write(tmp, rel, shared_page(rel, ctx, env, sections))
+            write(tmp, rel, shared_page(rel, ctx, env, sections))
             tick(1, rel)
         if pending is None:
             for i in todo:
@@ -732,8 +438,8 @@ def _fill(tmp: Path, analysis: SystemAnalysis, findings: list[Finding], env: jin
         shards = _data_and_shards(job) if side is None else side.get()
     listing = None
     if shards is not None and reuse is not None:
-        listing = {"shared": _write_shared(tmp, reuse, analysis), "shards": shards}
-    _write(tmp, MARKER, MARKER_TEXT)
+        listing = {"shared": write_shared(tmp, reuse, analysis), "shards": shards}
+    write(tmp, MARKER, MARKER_TEXT)
     return done, keys, listing
 
 
@@ -779,7 +485,7 @@ def _swap(tmp: Path, out: Path) -> None:
         os.replace(tmp, out)
         return
     for name in KEPT:
-        if _regular_file(out / name) and not (tmp / name).exists():
+        if regular_file(out / name) and not (tmp / name).exists():
             shutil.copy2(out / name, tmp / name)
     aside = Path(tempfile.mkdtemp(prefix=f".{out.name}.old-", dir=out.parent))
     aside.rmdir()
@@ -815,19 +521,8 @@ def write_site(analysis: SystemAnalysis, findings: list[Finding], output: Path, 
     try:
         (tmp / BUILDING_MARKER).write_text(f"{os.getpid()}\n", encoding="utf-8")
         count, keys, listing = _fill(tmp, analysis, findings, env, progress, reuse, figures, cached)
-        if reuse is not None and reuse.inputs is not None:
-            manifest = {
-                "cache": listing,
-                "format": MANIFEST_FORMAT,
-                "tool": reuse.tool,
-                "inputs": reuse.inputs.tree,
-                "pages": keys,
-                "count": count,
-                "channels": len(analysis.channels),
-                "findings": [[f.rule, f.severity, list(f.channels), f.file, f.line, f.message, f.waived,
-                              f.waiver_reason] for f in findings],
-            }
-            _write(tmp, MANIFEST, json.dumps(manifest, sort_keys=True, separators=(",", ":")) + "\n")
+        if reuse is not None and reuse.inputs is not None and listing is not None:
+            write(tmp, MANIFEST, manifest_text(reuse, keys, count, len(analysis.channels), findings, listing))
         _swap(tmp, out)
         (out / BUILDING_MARKER).unlink()
     except BaseException:
@@ -835,10 +530,6 @@ def write_site(analysis: SystemAnalysis, findings: list[Finding], output: Path, 
         raise
     return count
 
-
-def _unchanged(previous: dict[str, Any] | None, tool: str, inputs: Inputs | None) -> bool:
-    return (previous is not None and inputs is not None and previous.get("tool") == tool
-            and previous.get("inputs") == inputs.tree and isinstance(previous.get("findings"), list))
 
 
 def _intact(out: Path, previous: dict[str, Any]) -> bool:
@@ -904,14 +595,13 @@ def build(specs: Path | str, output: Path | str, progress: Progress | None = Non
     """
     specs_path, out_path = Path(specs), Path(output)
     check_output(out_path, specs_path)  # refuse early, before any work
-    tool, inputs = tool_key(), input_keys(specs_path)
-    previous = read_manifest(out_path) if incremental else None
+    tool, inputs = tool_key(TEMPLATES, plotly_bundle()), input_keys(specs_path)
+    previous = read_manifest(out_path) if incremental and regular_file(out_path / MARKER) else None
     if previous is not None and not _intact(out_path, previous):
         previous = None  # a site with links in it, or pages missing, is neither trusted nor reused
-    if previous is not None and _unchanged(previous, tool, inputs):
+    if previous is not None and unchanged(previous, tool, inputs):
         _clean_leftovers(out_path.resolve())  # a no-op build still tidies up after killed ones
-        findings = [Finding(r[0], r[1], tuple(r[2]), r[3], r[4], r[5], r[6], r[7]) for r in previous["findings"]]
-        return BuildSummary(out_path, int(previous["count"]), int(previous["channels"]), findings)
+        return BuildSummary(out_path, int(previous["count"]), int(previous["channels"]), manifest_findings(previous))
     reuse = Reuse(tool, inputs, previous, out_path.resolve())
     with _collector_paused() as settled:
         cached = reuse.load_cache()

@@ -15,7 +15,7 @@ from typing import Any
 
 import pytest
 
-from generator import load, render, site
+from generator import cache, load, render, site
 from generator.analysis import analyze
 from generator.load import load_spec
 from generator.rules import run_rules
@@ -94,9 +94,9 @@ def test_a_finding_on_another_channel_reaches_a_reused_page(tmp_path: Path) -> N
 def test_a_damaged_manifest_means_a_full_build(tmp_path: Path) -> None:
     out = tmp_path / "site"
     site.build(DEMO, out)
-    (out / site.MANIFEST).write_text("{not json", encoding="utf-8")
+    (out / cache.MANIFEST).write_text("{not json", encoding="utf-8")
     site.build(DEMO, out)
-    assert site.read_manifest(out) is not None
+    assert cache.read_manifest(out) is not None
     assert _pages(out) == _fresh(DEMO, tmp_path / "fresh")
 
 
@@ -180,7 +180,7 @@ def test_unchanged_files_are_not_parsed_again(tmp_path: Path, monkeypatch: pytes
     assert parsed == ["channels/HYD-01.md"]
     assert _pages(out) == _fresh(specs, tmp_path / "fresh")
     # a damaged cache file is never unpickled: every file is parsed again and the site is still right
-    for shard in (out / site.CACHE).glob("*.pickle"):
+    for shard in (out / cache.CACHE).glob("*.pickle"):
         shard.write_bytes(b"not a pickle")
     parsed.clear()
     edited.write_text(edited.read_text(encoding="utf-8") + "\nChecked again.\n", encoding="utf-8")
@@ -221,17 +221,17 @@ def test_one_edited_channel_rewrites_one_cache_shard(tmp_path: Path) -> None:
     shutil.copytree(DEMO, specs)
     out = tmp_path / "site"
     site.build(specs, out)
-    shards = {p.name: p.stat().st_ino for p in (out / site.CACHE).glob("channels-*.pickle")}
+    shards = {p.name: p.stat().st_ino for p in (out / cache.CACHE).glob("channels-*.pickle")}
     assert 5 <= len(shards) <= 17  # 17 channels spread over the shards by a hash of their path
     site.build(specs, out, incremental=False)  # a fresh build writes every shard again
     edited = specs / "channels" / "TQ-SHAFT.md"
     edited.write_text(edited.read_text(encoding="utf-8") + "\nBridge re-balanced.\n", encoding="utf-8")
-    before = {p.name: p.stat().st_ino for p in (out / site.CACHE).glob("channels-*.pickle")}
+    before = {p.name: p.stat().st_ino for p in (out / cache.CACHE).glob("channels-*.pickle")}
     site.build(specs, out)
-    after = {p.name: p.stat().st_ino for p in (out / site.CACHE).glob("channels-*.pickle")}
+    after = {p.name: p.stat().st_ino for p in (out / cache.CACHE).glob("channels-*.pickle")}
     assert sorted(after) == sorted(before)
     changed = {name for name in after if after[name] != before[name]}
-    assert changed == {Path(site.shard_of("channels/TQ-SHAFT.md")).name}
+    assert changed == {Path(cache.shard_of("channels/TQ-SHAFT.md")).name}
 
 
 def test_a_rebuild_after_a_note_edit_imports_no_scipy(tmp_path: Path) -> None:

@@ -9,7 +9,7 @@ from .conftest import ROOT
 
 PACKAGE = ROOT / "generator"
 # module -> the generator modules it must never import (directly)
-_SITE = {"charts", "render", "site"}
+_SITE = {"charts", "render", "site", "cache"}
 FORBIDDEN = {
     "errors": {"quantities", "schema", "model", "load", "dsp", "analysis", "rules", "report", "cli", *_SITE},
     "quantities": {"schema", "model", "load", "dsp", "analysis", "rules", "report", "cli", *_SITE},
@@ -21,9 +21,12 @@ FORBIDDEN = {
     "report": {"cli", "diff", *_SITE},
     "diff": {"cli", *_SITE},
     "propose": {"report", "cli", "diff", *_SITE},
-    "charts": {"load", "rules", "report", "render", "site", "cli"},
-    "render": {"load", "site", "cli"},
+    "charts": {"load", "rules", "report", "render", "site", "cache", "cli"},
+    "render": {"load", "site", "cache", "cli"},
     "site": {"cli"},
+    "cache": {"site", "cli", "charts", "propose", "report"},
+    "files": {"quantities", "schema", "model", "load", "dsp", "analysis", "rules", "report", "cli", "diff",
+              "propose", *_SITE},
     "scaffold": {"dsp", "analysis", "rules", "report", "cli", "diff", "table", "serve", *_SITE},
     "table": {"cli", "diff", "serve", *_SITE},
     "serve": {"cli", "table", "scaffold"},

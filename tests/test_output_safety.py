@@ -19,9 +19,10 @@ from pathlib import Path
 
 import pytest
 
-from generator import site
+from generator import cache, site
 from generator.cli import EXIT_BAD_INPUT, main
 from generator.errors import SpecError
+from generator.files import write as write_inside
 
 from .conftest import DEMO, MINIMAL, ROOT
 
@@ -30,7 +31,7 @@ def published(files: dict[str, str]) -> dict[str, str]:
     """A snapshot without the build cache, whose pickles may differ in bytes from one build to the
     next (object sharing, set order under hash randomisation) for equal content; the published
     pages are byte-identical."""
-    return {rel: digest for rel, digest in files.items() if not rel.startswith(site.CACHE + "/")}
+    return {rel: digest for rel, digest in files.items() if not rel.startswith(cache.CACHE + "/")}
 
 
 def snapshot(folder: Path) -> dict[str, str]:
@@ -269,5 +270,5 @@ def test_the_writer_refuses_a_path_out_of_the_site(tmp_path: Path, rel: str) -> 
     root = tmp_path / "site"
     root.mkdir()
     with pytest.raises(SpecError, match="outside the site folder"):
-        site._write(root, rel, "x")
+        write_inside(root, rel, "x")
     assert not (tmp_path / "escape.html").exists()

@@ -1,0 +1,298 @@
+"""The build cache: what a site keeps so the next build does only the work that changed.
+
+A site carries ``.specfold-cache/``.  ``manifest.json`` holds a key for the tool (version,
+generator source, templates, the plotly bundle, library versions), a key for the inputs
+(system.toml and every channel file), a key per channel page and book section, the findings (a
+no-op build reports them without checking again) and the SHA-256 of every cache file:
+
+- ``shared.pickle``: system.toml as loaded, and the numerical memos of :mod:`generator.dsp.memo`
+  (filter prototypes, least orders...), so a rebuild meeting only known filters imports no scipy;
+- ``channels-NN.pickle``: :data:`RESULT_SHARDS` shards by a hash of the channel file's path, each
+  channel as loaded and analysed with its figures as JSON text (the memo of
+  :func:`generator.report.to_json`), keyed by tool, system.toml and the file.
+
+A cache file is unpickled only when its SHA-256 is the manifest's (the tool wrote it into its own
+site); anything else means parsing again.  The cache's bytes may differ between builds of the same
+inputs (pickle's object sharing, set order under hash randomisation); the published pages never do.
+"""
+
+from __future__ import annotations
+
+import copyreg
+import hashlib
+import importlib.metadata
+import io
+import json
+import pickle
+from dataclasses import dataclass, field
+from pathlib import Path
+from types import MappingProxyType
+from typing import Any
+
+from . import __version__, render
+from .analysis import ChannelResult, SystemAnalysis
+from .dsp import memo
+from .files import carry, read_whole, regular_file, write
+from .load import SYSTEM_FILE, channel_files
+from .model import System
+from .rules import Finding
+
+CACHE = ".specfold-cache"
+MANIFEST = f"{CACHE}/manifest.json"
+MANIFEST_FORMAT = 2
+SHARED_CACHE = f"{CACHE}/shared.pickle"
+"""system.toml as loaded, and the filter prototypes and least orders found: a rebuild under the
+same system.toml does not parse it again, nor import scipy for filters it has already met."""
+RESULT_SHARDS = 64
+"""Every channel as loaded and analysed with its figures as JSON text, keyed by
+its file, in this many pickle files by a hash of the file's path: a rebuild neither parses nor
+analyses a file whose key (tool, system.toml, the file) is unchanged, and writes again only the
+shards whose entries changed."""
+LIBRARIES = ("numpy", "scipy", "jinja2", "markdown", "nh3", "plotly", "markupsafe")
+"""Installed libraries whose versions are part of the tool key."""
+
+
+def digest(*parts: str | bytes) -> str:
+    h = hashlib.sha256()
+    for part in parts:
+        data = part.encode("utf-8") if isinstance(part, str) else part
+        h.update(len(data).to_bytes(8, "little"))
+        h.update(data)
+    return h.hexdigest()
+
+
+def tool_key(templates: Path, bundle: Path) -> str:
+    """What the tool contributes to every page: version, generator source, ``templates``, the
+    plotly ``bundle``, and the versions of the libraries that compute or write part of it."""
+    parts: list[str | bytes] = [__version__]
+    package = Path(__file__).resolve().parent
+    for folder in (package, templates):
+        for path in sorted(folder.rglob("*")):
+            if path.is_file() and path.suffix in (".py", ".html", ".css", ".js"):
+                parts += [path.relative_to(folder).as_posix(), path.read_bytes()]
+    shipped = bundle.stat()
+    parts.append(f"plotly {shipped.st_size} {shipped.st_mtime_ns}")
+    for library in LIBRARIES:  # what they compute or write reaches the pages and the cache
+        try:
+            parts.append(f"{library} {importlib.metadata.version(library)}")
+        except importlib.metadata.PackageNotFoundError:
+            parts.append(f"{library} unknown")
+    return digest(*parts)
+
+
+@dataclass(frozen=True)
+class Inputs:
+    """Keys of the spec tree: the whole of it, system.toml, and each channel file by its path."""
+
+    tree: str
+    system: str
+    files: dict[str, str]
+
+
+def input_keys(specs: Path) -> Inputs | None:
+    """Hash every file the build reads; None when one cannot be read (no shortcut is taken then)."""
+    try:
+        system = digest((specs / SYSTEM_FILE).read_bytes())
+        files = {p.relative_to(specs).as_posix(): digest(read_whole(str(p))) for p in channel_files(specs)}
+    except OSError:
+        return None
+    return Inputs(digest(system, *(f"{k} {v}" for k, v in files.items())), system, files)
+
+
+def read_manifest(output: Path) -> dict[str, Any] | None:
+    """The manifest in ``output``, or None when there is no usable one (the caller checks that
+    ``output`` is a site at all)."""
+    path = output / MANIFEST
+    if not regular_file(path):
+        return None
+    try:
+        data = json.loads(path.read_text(encoding="utf-8"))
+    except (OSError, ValueError):
+        return None
+    if not isinstance(data, dict) or data.get("format") != MANIFEST_FORMAT or not isinstance(data.get("pages"), dict):
+        return None
+    return data
+
+
+def unchanged(previous: dict[str, Any] | None, tool: str, inputs: Inputs | None) -> bool:
+    """Whether the site ``previous`` describes was built by this very tool from these very inputs."""
+    return (previous is not None and inputs is not None and previous.get("tool") == tool
+            and previous.get("inputs") == inputs.tree and isinstance(previous.get("findings"), list))
+
+
+@dataclass
+class Cached:
+    """What a build took from the current site's cache."""
+
+    results: dict[str, ChannelResult] = field(default_factory=dict)
+    """channel file -> its loaded channel and per-channel analysis, for files whose key holds"""
+    figures: dict[str, str] = field(default_factory=dict)
+    """channel id -> its figures as JSON text (the memo of :func:`report.to_json`)"""
+    system: System | None = None
+    designs: object = None
+    shards: dict[str, tuple[str, list[tuple[str, str]]]] = field(default_factory=dict)
+    """shard file -> (its SHA-256, the (file, key) pairs it held)"""
+
+
+@dataclass
+class Reuse:
+    """What a build may take from the site it replaces."""
+
+    tool: str
+    inputs: Inputs | None
+    previous: dict[str, Any] | None
+    old_site: Path
+    reused: int = 0
+
+    def page_key(self, result: ChannelResult, ctx: render.Context, rel: str) -> str | None:
+        if self.inputs is None:
+            return None
+        ch = result.channel
+        file_key = self.inputs.files.get(ch.source.file)
+        if file_key is None:
+            return None
+        linked = [(repr(f), [ctx.paths.get(c, "") for c in f.channels]) for f in ctx.by_channel.get(ch.id, ())]
+        return digest(self.tool, self.inputs.system, ch.source.file, file_key, rel, ctx.status[ch.id],
+                       repr(result.budget), repr(linked), repr(ctx.proposals.get(ch.id)))
+
+    def section_key(self, section: render.BookSection, channel_keys: list[str | None]) -> str | None:
+        """A book section's key: its path, its label and the keys of its channels' pages (which
+        cover everything a sheet shows)."""
+        members = [channel_keys[i] for i in section.channels]
+        if any(k is None for k in members):
+            return None
+        return digest(self.tool, "book section", section.path, section.label, *(k or "" for k in members))
+
+    def result_key(self, rel: str) -> str | None:
+        """Key of one channel file's loaded channel and per-channel analysis."""
+        if self.inputs is None or rel not in self.inputs.files:
+            return None
+        return digest(self.tool, "channel result", self.inputs.system, rel, self.inputs.files[rel])
+
+    def system_key(self) -> str | None:
+        return None if self.inputs is None else digest(self.tool, "system", self.inputs.system)
+
+    def _unpickle(self, rel: str, digest: object) -> Any:
+        """A cache file of the current site, unpickled only when it is the very file its manifest
+        names (by SHA-256); None when it is missing, damaged or not that file."""
+        path = self.old_site / rel
+        if self.previous is None or not isinstance(digest, str) or not regular_file(path):
+            return None
+        try:
+            data = path.read_bytes()
+            if hashlib.sha256(data).hexdigest() != digest:
+                return None  # not the file this site's manifest wrote
+            return pickle.loads(data)  # written by this tool into its own site, checked above
+        except Exception:  # a damaged cache only means parsing again
+            return None
+
+    def load_cache(self) -> Cached:
+        """What the current site's cache still holds for this build: the loaded system.toml (when
+        it is unchanged), the filter prototypes, and the channels whose keys still hold."""
+        cached = Cached()
+        listed = self.previous.get("cache") if self.previous is not None else None
+        if not isinstance(listed, dict):
+            return cached
+        shared = self._unpickle(SHARED_CACHE, listed.get("shared"))
+        if isinstance(shared, dict):
+            system = shared.get("system")
+            if isinstance(system, tuple) and len(system) == 2 and system[0] == self.system_key():
+                cached.system = system[1] if isinstance(system[1], System) else None
+            cached.designs = shared.get("designs")
+        shards = listed.get("shards")
+        for name, digest in sorted(shards.items()) if isinstance(shards, dict) else ():
+            entries = self._unpickle(name, digest) if isinstance(name, str) else None
+            if not isinstance(entries, dict):
+                continue
+            held: list[tuple[str, str]] = []
+            for rel, entry in entries.items():
+                if not (isinstance(entry, tuple) and len(entry) == 3 and isinstance(entry[1], ChannelResult)
+                        and isinstance(entry[2], str)):
+                    continue
+                held.append((rel, entry[0]))
+                if entry[0] == self.result_key(rel):
+                    cached.results[rel] = entry[1]
+                    cached.figures[entry[1].channel.id] = entry[2]
+            cached.shards[name] = (digest, held)
+        return cached
+
+    def take(self, rel: str, key: str | None, tmp: Path) -> bool:
+        """Link (or copy) an unchanged page from the current site; False when it must be rendered."""
+        if key is None or self.previous is None or self.previous["pages"].get(rel) != key:
+            return False
+        return carry(self.old_site / rel, tmp / rel)
+
+
+def _proxy(items: dict[str, Any]) -> MappingProxyType[str, Any]:
+    return MappingProxyType(items)
+
+
+def _pickled(value: object) -> bytes:
+    buffer = io.BytesIO()
+    pickler = pickle.Pickler(buffer, protocol=pickle.HIGHEST_PROTOCOL)
+    table = copyreg.dispatch_table.copy()
+    table[MappingProxyType] = lambda m: (_proxy, (dict(m),))
+    pickler.dispatch_table = table
+    pickler.dump(value)
+    return buffer.getvalue()
+
+
+def shard_of(rel: str) -> str:
+    """The cache file holding the channel file ``rel`` (a stable hash of its path)."""
+    return f"{CACHE}/channels-{hashlib.sha256(rel.encode('utf-8')).digest()[0] % RESULT_SHARDS:02d}.pickle"
+
+
+def write_shards(tmp: Path, reuse: Reuse, analysis: SystemAnalysis, figures: dict[str, str],
+                  cached: Cached) -> dict[str, str]:
+    """Write the channel shards of the build cache into ``tmp``; returns file -> SHA-256.
+
+    A shard whose entries are the very ones read from the current site is carried over (linked)
+    rather than pickled again."""
+    shards: dict[str, dict[str, tuple[str, ChannelResult, str]]] = {}
+    for r in analysis.channels:
+        rel = r.channel.source.file
+        key = reuse.result_key(rel)
+        if key is not None and r.channel.id in figures:
+            shards.setdefault(shard_of(rel), {})[rel] = (key, r, figures[r.channel.id])
+    listing: dict[str, str] = {}
+    for name, entries in sorted(shards.items()):
+        old = cached.shards.get(name)
+        if (old is not None and old[1] == [(rel, e[0]) for rel, e in entries.items()]
+                and carry(reuse.old_site / name, tmp / name)):
+            listing[name] = old[0]
+            continue
+        data = _pickled(entries)
+        write(tmp, name, data)
+        listing[name] = hashlib.sha256(data).hexdigest()
+    return listing
+
+
+def write_shared(tmp: Path, reuse: Reuse, analysis: SystemAnalysis) -> str:
+    """Write the loaded system and this process's numerical memos (``dsp.memo``) into ``tmp``;
+    returns the file's SHA-256.  Written last, once every page (and with it every chart's filter
+    designs) is done."""
+    data = _pickled({"system": (reuse.system_key(), analysis.spec.system), "designs": memo.known()})
+    write(tmp, SHARED_CACHE, data)
+    return hashlib.sha256(data).hexdigest()
+
+
+def manifest_text(reuse: Reuse, keys: dict[str, str], count: int, channels: int, findings: list[Finding],
+                  listing: dict[str, Any]) -> str:
+    """The manifest of a new site: keys, page count, the findings and the cache files' SHA-256."""
+    manifest = {
+        "cache": listing,
+        "format": MANIFEST_FORMAT,
+        "tool": reuse.tool,
+        "inputs": reuse.inputs.tree if reuse.inputs is not None else None,
+        "pages": keys,
+        "count": count,
+        "channels": channels,
+        "findings": [[f.rule, f.severity, list(f.channels), f.file, f.line, f.message, f.waived,
+                      f.waiver_reason] for f in findings],
+    }
+    return json.dumps(manifest, sort_keys=True, separators=(",", ":")) + "\n"
+
+
+def manifest_findings(previous: dict[str, Any]) -> list[Finding]:
+    """The findings a manifest recorded (a no-op build reports them)."""
+    return [Finding(r[0], r[1], tuple(r[2]), r[3], r[4], r[5], r[6], r[7]) for r in previous["findings"]]

@@ -1,0 +1,72 @@
+"""File primitives for the site folder: no policy, no pages.
+
+``write`` never lands outside the folder it is given; ``carry`` hard-links a regular file (never a
+symbolic link) and falls back to a copy; ``read_whole`` reads a file without buffered-IO objects.
+The policy (which folders may be replaced, the swap, leftovers of killed builds) is in site.py.
+"""
+
+from __future__ import annotations
+
+import os
+import shutil
+import stat
+from pathlib import Path
+
+from .errors import SpecError
+
+
+def inside(path: Path, folder: Path) -> bool:
+    return path == folder or folder in path.parents
+
+
+def regular_file(path: Path) -> bool:
+    """A plain file, not a symbolic link to one: links in an old site are never followed."""
+    return path.is_file() and not path.is_symlink()
+
+
+def write(root: Path, rel: str, data: str | bytes) -> None:
+    target = (root / rel).resolve()
+    if not inside(target, root) or target == root:
+        raise SpecError(f"refusing to write {rel!r}: it would land outside the site folder")
+    target.parent.mkdir(parents=True, exist_ok=True)
+    if isinstance(data, str):
+        target.write_text(data, encoding="utf-8", newline="\n")
+    else:
+        target.write_bytes(data)
+
+
+def read_whole(path: str | Path) -> bytes:
+    """A whole file, read without buffered-IO objects (10,000 of them cost a tenth of a second)."""
+    fd = os.open(path, os.O_RDONLY | getattr(os, "O_BINARY", 0))
+    try:
+        chunks = []
+        while chunk := os.read(fd, 1 << 20):
+            chunks.append(chunk)
+        return b"".join(chunks)
+    finally:
+        os.close(fd)
+
+
+def carry(source: Path, target: Path) -> bool:
+    """Hard-link (or else copy) a regular file of the current site into the new one; False when
+    ``source`` is not a regular file (a link is never carried) or neither works."""
+    try:
+        if not stat.S_ISREG(os.lstat(source).st_mode):
+            return False
+    except OSError:
+        return False
+    for attempt in (1, 2):
+        try:
+            os.link(source, target, follow_symlinks=False)
+            return True
+        except FileNotFoundError:
+            if attempt == 2:
+                break
+            target.parent.mkdir(parents=True, exist_ok=True)  # the first file into its folder
+        except OSError:  # another file system, or no hard links there
+            break
+    try:
+        shutil.copyfile(source, target, follow_symlinks=False)
+    except OSError:
+        return False
+    return True
