@@ -143,6 +143,7 @@ class Reuse:
     previous: dict[str, Any] | None
     old_site: Path
     reused: int = 0
+    _result_keys: dict[str, str] = field(default_factory=dict, repr=False)
 
     def page_key(self, result: ChannelResult, ctx: render.Context, rel: str) -> str | None:
         if self.inputs is None:
@@ -167,7 +168,11 @@ class Reuse:
         """Key of one channel file's loaded channel and per-channel analysis."""
         if self.inputs is None or rel not in self.inputs.files:
             return None
-        return digest(self.tool, "channel result", self.inputs.system, rel, self.inputs.files[rel])
+        key = self._result_keys.get(rel)
+        if key is None:
+            key = self._result_keys[rel] = digest(self.tool, "channel result", self.inputs.system, rel,
+                                                  self.inputs.files[rel])
+        return key
 
     def system_key(self) -> str | None:
         return None if self.inputs is None else digest(self.tool, "system", self.inputs.system)

@@ -754,20 +754,21 @@ def channel_files(root: Path) -> list[Path]:
     One ``scandir`` per folder, whose entries already know their type: a tree of 10,000 files
     is listed without a ``stat`` per file.
     """
-    found: list[Path] = []
-    stack = [root / CHANNEL_DIR]
+    found: list[tuple[tuple[str, ...], Path]] = []
+    stack: list[tuple[Path, tuple[str, ...]]] = [(root / CHANNEL_DIR, ())]
     while stack:
-        folder = stack.pop()
+        folder, parts = stack.pop()
         try:
             with os.scandir(folder) as entries:
                 for entry in entries:
                     if entry.is_dir(follow_symlinks=False):
-                        stack.append(folder / entry.name)
+                        stack.append((folder / entry.name, (*parts, entry.name)))
                     elif entry.name.endswith(".md") and entry.is_file(follow_symlinks=False):
-                        found.append(folder / entry.name)
+                        found.append(((*parts, entry.name), folder / entry.name))
         except OSError:
             continue  # no channels folder (or an unreadable one): nothing in it is listed
-    return sorted(found)
+    found.sort(key=lambda item: item[0])  # the order of sorted() on the paths, without Path comparisons
+    return [path for _, path in found]
 
 
 def load_system(root: Path | str) -> System:

@@ -13,7 +13,7 @@ from pathlib import Path
 import pytest
 
 from generator.errors import SpecErrors
-from generator.load import load_spec, locate_keys, split_header
+from generator.load import channel_files, load_spec, locate_keys, split_header
 
 from .conftest import DATA, DEMO, MINIMAL, overlay
 
@@ -87,3 +87,17 @@ def test_locate_keys_finds_tables_arrays_and_dotted_keys() -> None:
     assert pos["interference.1.level"] == (16, 1)
     assert "interference.1.fake" not in pos  # inside a multi-line string
     assert pos["interference.1.signal.peak"] == (20, 1)
+
+
+def test_channel_files_come_in_path_order_without_links(tmp_path: Path) -> None:
+    # Reference: pathlib's own ordering (sorted() on the paths), which the listing must keep while
+    # comparing plain strings; folders whose names sort differently as strings and as parts
+    # ("a-b" < "a/" as text, "a" < "a-b" as parts) and a symbolic link that must not be listed.
+    channels = tmp_path / "channels"
+    for rel in ("a-b/X.md", "a/X.md", "a/b/Y.md", "A.md", "b.md", "a.b/Z.md", "notes.txt"):
+        (channels / rel).parent.mkdir(parents=True, exist_ok=True)
+        (channels / rel).write_text("x", encoding="utf-8")
+    (channels / "linked.md").symlink_to(channels / "b.md")
+    listed = channel_files(tmp_path)
+    expected = sorted(p for p in channels.rglob("*.md") if not p.is_symlink())
+    assert listed == expected and len(listed) == 6
