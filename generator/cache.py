@@ -11,8 +11,12 @@ no-op build reports them without checking again) and the SHA-256 of every cache 
   channel as loaded and analysed with its figures as JSON text (the memo of
   :func:`generator.report.to_json`), keyed by tool, system.toml and the file.
 
-A cache file is unpickled only when its SHA-256 is the manifest's (the tool wrote it into its own
-site); anything else means parsing again.  The cache's bytes may differ between builds of the same
+Unpickling runs code named in the file, so a cache file is unpickled only when its seal, an
+HMAC-SHA256 under a key kept outside the site (:func:`signing_key`, made once per user and
+machine, readable by its owner only), is the one the manifest records.  A site copied from
+elsewhere (another machine, a CI cache restored from another job) or a cache file planted in the
+output folder is then never unpickled: its files are parsed again.  Anything else that does not
+match means parsing again too.  The cache's bytes may differ between builds of the same
 inputs (pickle's object sharing, set order under hash randomisation); the published pages never do.
 """
 
@@ -20,10 +24,13 @@ from __future__ import annotations
 
 import copyreg
 import hashlib
+import hmac
 import importlib.metadata
 import io
 import json
+import os
 import pickle
+import secrets
 from dataclasses import dataclass, field
 from pathlib import Path
 from types import MappingProxyType
@@ -59,6 +66,42 @@ def digest(*parts: str | bytes) -> str:
         h.update(len(data).to_bytes(8, "little"))
         h.update(data)
     return h.hexdigest()
+
+
+KEY_FILE = "cache-key"
+KEY_BYTES = 32
+
+
+def key_folder() -> Path:
+    """Where this user's signing key lives: ``$XDG_CACHE_HOME/specfold``, else ``~/.cache/specfold``."""
+    base = os.environ.get("XDG_CACHE_HOME")
+    return (Path(base) if base else Path.home() / ".cache") / "specfold"
+
+
+def signing_key() -> bytes | None:
+    """This user's key for sealing build caches, made on first use (32 random bytes, mode 0600);
+    None when it can be neither read nor made (then builds neither read nor write a cache)."""
+    path = key_folder() / KEY_FILE
+    try:
+        if not regular_file(path):
+            path.parent.mkdir(parents=True, exist_ok=True)
+            fd = os.open(path, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o600)
+            with os.fdopen(fd, "wb") as fh:
+                fh.write(secrets.token_bytes(KEY_BYTES))
+    except FileExistsError:
+        pass  # another build made it meanwhile
+    except (OSError, RuntimeError):  # RuntimeError: no home folder to be found
+        return None
+    try:
+        data = read_whole(path) if regular_file(path) else b""
+    except OSError:
+        return None
+    return data if len(data) >= KEY_BYTES else None
+
+
+def seal(data: bytes, key: bytes) -> str:
+    """HMAC-SHA256 of a cache file under the signing key [RFC 2104], hex."""
+    return hmac.new(key, data, hashlib.sha256).hexdigest()
 
 
 def tool_key(templates: Path, bundle: Path) -> str:
@@ -142,6 +185,8 @@ class Reuse:
     inputs: Inputs | None
     previous: dict[str, Any] | None
     old_site: Path
+    key: bytes | None = None
+    """The signing key (:func:`signing_key`); without one no cache is read or written."""
     reused: int = 0
     _result_keys: dict[str, str] = field(default_factory=dict, repr=False)
 
@@ -177,17 +222,17 @@ class Reuse:
     def system_key(self) -> str | None:
         return None if self.inputs is None else digest(self.tool, "system", self.inputs.system)
 
-    def _unpickle(self, rel: str, digest: object) -> Any:
-        """A cache file of the current site, unpickled only when it is the very file its manifest
-        names (by SHA-256); None when it is missing, damaged or not that file."""
+    def _unpickle(self, rel: str, sealed: object) -> Any:
+        """A cache file of the current site, unpickled only when its seal under this user's key is
+        the manifest's; None when it is missing, damaged, or not sealed by this key."""
         path = self.old_site / rel
-        if self.previous is None or not isinstance(digest, str) or not regular_file(path):
+        if self.previous is None or self.key is None or not isinstance(sealed, str) or not regular_file(path):
             return None
         try:
             data = path.read_bytes()
-            if hashlib.sha256(data).hexdigest() != digest:
-                return None  # not the file this site's manifest wrote
-            return pickle.loads(data)  # written by this tool into its own site, checked above
+            if not hmac.compare_digest(seal(data, self.key), sealed):
+                return None  # not a file this user's builds wrote: never unpickled
+            return pickle.loads(data)  # sealed by this user's key, checked above
         except Exception:  # a damaged cache only means parsing again
             return None
 
@@ -247,9 +292,9 @@ def shard_of(rel: str) -> str:
     return f"{CACHE}/channels-{hashlib.sha256(rel.encode('utf-8')).digest()[0] % RESULT_SHARDS:02d}.pickle"
 
 
-def write_shards(tmp: Path, reuse: Reuse, analysis: SystemAnalysis, figures: dict[str, str],
+def write_shards(tmp: Path, reuse: Reuse, signing: bytes, analysis: SystemAnalysis, figures: dict[str, str],
                   cached: Cached) -> dict[str, str]:
-    """Write the channel shards of the build cache into ``tmp``; returns file -> SHA-256.
+    """Write the channel shards of the build cache into ``tmp``; returns file -> seal.
 
     A shard whose entries are the very ones read from the current site is carried over (linked)
     rather than pickled again."""
@@ -268,17 +313,17 @@ def write_shards(tmp: Path, reuse: Reuse, analysis: SystemAnalysis, figures: dic
             continue
         data = _pickled(entries)
         write(tmp, name, data)
-        listing[name] = hashlib.sha256(data).hexdigest()
+        listing[name] = seal(data, signing)
     return listing
 
 
-def write_shared(tmp: Path, reuse: Reuse, analysis: SystemAnalysis) -> str:
+def write_shared(tmp: Path, reuse: Reuse, signing: bytes, analysis: SystemAnalysis) -> str:
     """Write the loaded system and this process's numerical memos (``dsp.memo``) into ``tmp``;
-    returns the file's SHA-256.  Written last, once every page (and with it every chart's filter
+    returns the file's seal.  Written last, once every page (and with it every chart's filter
     designs) is done."""
     data = _pickled({"system": (reuse.system_key(), analysis.spec.system), "designs": memo.known()})
     write(tmp, SHARED_CACHE, data)
-    return hashlib.sha256(data).hexdigest()
+    return seal(data, signing)
 
 
 def manifest_text(reuse: Reuse, keys: dict[str, str], count: int, channels: int, findings: list[Finding],

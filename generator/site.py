@@ -72,6 +72,7 @@ from .cache import (
     manifest_findings,
     manifest_text,
     read_manifest,
+    signing_key,
     tool_key,
     unchanged,
     write_shards,
@@ -357,9 +358,9 @@ def _data_and_shards(job: _Job) -> dict[str, str] | None:
     text writing spec.json encodes); returns the shards' listing."""
     analysis = job.ctx.analysis
     write(job.tmp, "data/spec.json", to_json(analysis, job.ctx.findings, memo=job.figures))
-    if job.reuse is None or job.reuse.inputs is None:
+    if job.reuse is None or job.reuse.inputs is None or job.reuse.key is None:
         return None
-    return write_shards(job.tmp, job.reuse, analysis, job.figures, job.cached)
+    return write_shards(job.tmp, job.reuse, job.reuse.key, analysis, job.figures, job.cached)
 
 
 def _side() -> dict[str, str] | None:
@@ -437,8 +438,8 @@ def _fill(tmp: Path, analysis: SystemAnalysis, findings: list[Finding], env: jin
                 tick(n, "channels/")
         shards = _data_and_shards(job) if side is None else side.get()
     listing = None
-    if shards is not None and reuse is not None:
-        listing = {"shared": write_shared(tmp, reuse, analysis), "shards": shards}
+    if shards is not None and reuse is not None and reuse.key is not None:
+        listing = {"shared": write_shared(tmp, reuse, reuse.key, analysis), "shards": shards}
     write(tmp, MARKER, MARKER_TEXT)
     return done, keys, listing
 
@@ -521,8 +522,8 @@ def write_site(analysis: SystemAnalysis, findings: list[Finding], output: Path, 
     try:
         (tmp / BUILDING_MARKER).write_text(f"{os.getpid()}\n", encoding="utf-8")
         count, keys, listing = _fill(tmp, analysis, findings, env, progress, reuse, figures, cached)
-        if reuse is not None and reuse.inputs is not None and listing is not None:
-            write(tmp, MANIFEST, manifest_text(reuse, keys, count, len(analysis.channels), findings, listing))
+        if reuse is not None and reuse.inputs is not None:
+            write(tmp, MANIFEST, manifest_text(reuse, keys, count, len(analysis.channels), findings, listing or {}))
         _swap(tmp, out)
         (out / BUILDING_MARKER).unlink()
     except BaseException:
@@ -602,7 +603,7 @@ def build(specs: Path | str, output: Path | str, progress: Progress | None = Non
     if previous is not None and unchanged(previous, tool, inputs):
         _clean_leftovers(out_path.resolve())  # a no-op build still tidies up after killed ones
         return BuildSummary(out_path, int(previous["count"]), int(previous["channels"]), manifest_findings(previous))
-    reuse = Reuse(tool, inputs, previous, out_path.resolve())
+    reuse = Reuse(tool, inputs, previous, out_path.resolve(), signing_key())
     with _collector_paused() as settled:
         cached = reuse.load_cache()
         memo.remember(cached.designs)

@@ -2,7 +2,9 @@
 
 from __future__ import annotations
 
+import os
 import shutil
+from collections.abc import Iterator
 from pathlib import Path
 
 import pytest
@@ -41,3 +43,17 @@ def minimal_tree(tmp_path: Path) -> Path:
     dest = tmp_path / "specs"
     shutil.copytree(MINIMAL, dest)
     return dest
+
+
+@pytest.fixture(autouse=True, scope="session")
+def _signing_key_folder(tmp_path_factory: pytest.TempPathFactory) -> Iterator[None]:
+    """Builds seal their caches with a per-user key kept in ``$XDG_CACHE_HOME/specfold``: the tests
+    keep theirs in a folder of the session, never in the real home (child processes inherit it)."""
+    folder = tmp_path_factory.mktemp("xdg-cache")
+    before = os.environ.get("XDG_CACHE_HOME")
+    os.environ["XDG_CACHE_HOME"] = str(folder)
+    yield
+    if before is None:
+        os.environ.pop("XDG_CACHE_HOME", None)
+    else:
+        os.environ["XDG_CACHE_HOME"] = before

@@ -7,6 +7,11 @@ Also a smoke test that the benchmark's synthetic trees load and check without er
 
 from __future__ import annotations
 
+import hashlib
+import hmac
+import json
+import os
+import pickle
 import shutil
 import subprocess
 import sys
@@ -254,4 +259,69 @@ def test_a_rebuild_after_a_note_edit_imports_no_scipy(tmp_path: Path) -> None:
     # No scipy.signal: the filter designs all come from the cache.  The
     # demo's flagged channels get proposals on every build, whose searches may use scipy.optimize.
     assert "scipy.signal" not in build()
+    assert _pages(out) == _fresh(specs, tmp_path / "fresh")
+
+
+class _Planted:
+    """A pickle payload: unpickling it makes a folder (what a planted cache file could do)."""
+
+    def __init__(self, marker: Path) -> None:
+        self.marker = marker
+
+    def __reduce__(self) -> tuple[Any, tuple[str]]:
+        return os.mkdir, (str(self.marker),)
+
+
+def test_a_planted_cache_file_is_never_unpickled(tmp_path: Path) -> None:
+    # Unpickling runs code named in the file.  Whoever can write into the output folder (or a CI
+    # cache restored from another job) could plant a shard and a manifest naming its SHA-256, or a
+    # seal under their own key; only a seal under this user's key opens a cache file.
+    # Reference: RFC 2104 HMAC, computed here with the standard library's hmac module.
+    specs = tmp_path / "specs"
+    shutil.copytree(DEMO, specs)
+    out = tmp_path / "site"
+    site.build(specs, out)
+    marker = tmp_path / "payload-ran"
+    name = cache.shard_of("channels/TQ-SHAFT.md")
+    planted = pickle.dumps({"channels/TQ-SHAFT.md": _Planted(marker)})
+    manifest = json.loads((out / cache.MANIFEST).read_text(encoding="utf-8"))
+    for seal in (hashlib.sha256(planted).hexdigest(),                        # the plain digest
+                 hmac.new(b"k" * 32, planted, hashlib.sha256).hexdigest()):  # another key's seal
+        (out / name).unlink()
+        (out / name).write_bytes(planted)
+        manifest["cache"]["shards"][name] = seal
+        (out / cache.MANIFEST).write_text(json.dumps(manifest), encoding="utf-8")
+        edited = specs / "channels" / "HYD-01.md"
+        edited.write_text(edited.read_text(encoding="utf-8") + "\nRe-seated.\n", encoding="utf-8")
+        site.build(specs, out)
+        assert not marker.exists()
+        manifest = json.loads((out / cache.MANIFEST).read_text(encoding="utf-8"))
+    assert _pages(out) == _fresh(specs, tmp_path / "fresh")
+    # the genuine seal: this very payload, sealed with this user's key, would run (the check can fail)
+    key = cache.signing_key()
+    assert key is not None and len(key) == cache.KEY_BYTES
+    (out / name).unlink()
+    (out / name).write_bytes(planted)
+    manifest["cache"]["shards"][name] = cache.seal(planted, key)
+    (out / cache.MANIFEST).write_text(json.dumps(manifest), encoding="utf-8")
+    edited.write_text(edited.read_text(encoding="utf-8") + "\nAgain.\n", encoding="utf-8")
+    site.build(specs, out)
+    assert marker.exists()
+
+
+def test_another_users_cache_means_parsing_again(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    specs = tmp_path / "specs"
+    shutil.copytree(DEMO, specs)
+    out = tmp_path / "site"
+    site.build(specs, out)
+    key_file = cache.key_folder() / cache.KEY_FILE
+    assert key_file.stat().st_mode & 0o777 == 0o600  # readable by its owner only
+    monkeypatch.setenv("XDG_CACHE_HOME", str(tmp_path / "someone-else"))  # a new key: the old seals fail
+    parsed: list[str] = []
+    real = load._load_channel
+    monkeypatch.setattr(load, "_load_channel", lambda path, rel, *a: parsed.append(rel) or real(path, rel, *a))
+    edited = specs / "channels" / "HYD-01.md"
+    edited.write_text(edited.read_text(encoding="utf-8") + "\nRe-seated.\n", encoding="utf-8")
+    site.build(specs, out)
+    assert len(parsed) == 17
     assert _pages(out) == _fresh(specs, tmp_path / "fresh")
