@@ -325,3 +325,23 @@ def test_another_users_cache_means_parsing_again(tmp_path: Path, monkeypatch: py
     site.build(specs, out)
     assert len(parsed) == 17
     assert _pages(out) == _fresh(specs, tmp_path / "fresh")
+
+
+def test_without_a_usable_key_folder_builds_work_and_keep_no_cache(tmp_path: Path,
+                                                                     monkeypatch: pytest.MonkeyPatch) -> None:
+    blocked = tmp_path / "not-a-folder"
+    blocked.write_text("a file where the key folder would go", encoding="utf-8")
+    monkeypatch.setenv("XDG_CACHE_HOME", str(blocked))
+    assert cache.signing_key() is None
+    specs = tmp_path / "specs"
+    shutil.copytree(DEMO, specs)
+    out = tmp_path / "site"
+    site.build(specs, out)
+    assert sorted(p.name for p in (out / cache.CACHE).iterdir()) == ["manifest.json"]
+    inode = out.stat().st_ino
+    site.build(specs, out)  # the manifest alone still makes an unchanged rebuild a no-op
+    assert out.stat().st_ino == inode
+    edited = specs / "channels" / "HYD-01.md"
+    edited.write_text(edited.read_text(encoding="utf-8") + "\nRe-seated.\n", encoding="utf-8")
+    site.build(specs, out)
+    assert _pages(out) == _fresh(specs, tmp_path / "fresh")
