@@ -392,3 +392,38 @@ def test_remembered_designs_are_what_scipy_designs() -> None:
         for name, m in memo._MEMOS.items():
             m.table.clear()
             m.table.update(saved[name])
+
+
+MASKS = [(r, ap, as_) for r in (1.05, 1.2, 1.5, 2.0, 3.0, 5.0, 10.0, 50.0) for ap in (0.001, 0.01, 0.1, 0.5, 1.0, 3.0)
+         for as_ in (20.0, 40.0, 60.0, 80.0, 100.0, 120.0, 140.0)]
+
+
+@pytest.mark.parametrize("family", ["butterworth", "chebyshev1", "chebyshev2", "elliptic"])
+def test_order_estimate_is_scipys(family: str) -> None:
+    # Reference: scipy.signal's buttord / cheb1ord / cheb2ord / ellipord (analog), whose closed
+    # forms order_estimate evaluates without importing scipy.signal; 336 masks per family.
+    fn = {"butterworth": signal.buttord, "chebyshev1": signal.cheb1ord, "chebyshev2": signal.cheb2ord,
+          "elliptic": signal.ellipord}[family]
+    compared = 0
+    for ratio, ap, as_ in MASKS:
+        real, wn = flt.order_estimate(family, ratio, ap, as_)
+        if abs(real - round(real)) < 1e-9:
+            continue  # on an integer the rounding may go either way; least_order checks the design
+        n_ref, wn_ref = fn(1.0, ratio, ap, as_, analog=True)
+        assert math.ceil(real) == n_ref, (ratio, ap, as_)
+        if family == "chebyshev2":
+            assert wn == pytest.approx(float(np.atleast_1d(wn_ref)[0]), rel=1e-12)
+        compared += 1
+    assert compared > 320
+
+
+def test_complete_elliptic_integral_matches_scipy_special() -> None:
+    # Reference: scipy.special.ellipk, and K(0) = pi/2 (A&S 17.3.11, from memory).
+    for m in (0.0, 1e-12, 0.1, 0.5, 0.9, 0.999999, 1 - 1e-12):
+        assert flt.ellipk(m) == pytest.approx(float(special.ellipk(m)), rel=1e-13)
+    for p in (1e-18, 1e-12, 0.1, 0.5, 0.9, 1.0):
+        assert flt.ellipkm1(p) == pytest.approx(float(special.ellipkm1(p)), rel=1e-13)
+    assert flt.ellipk(0.0) == pytest.approx(math.pi / 2, rel=1e-15)
+    assert flt.ellipk(1.0) == math.inf
+    with pytest.raises(ValueError):
+        flt.ellipk(1.5)

@@ -25,6 +25,7 @@ References
 ----------
 [WT]  A. B. Williams, F. J. Taylor, *Electronic Filter Design Handbook* (McGraw-Hill).
 [ZUM] H. Zumbahlen (ed.), *Linear Circuit Design Handbook* (Analog Devices), ch. 8.
+[A&S] M. Abramowitz, I. A. Stegun, *Handbook of Mathematical Functions*, 17.6 (the AGM and K(m)).
 [SCIPY] scipy.signal: butter, bessel, cheby1, cheby2, ellip, buttord, cheb1ord, cheb2ord,
       ellipord (analog=True).
 """
@@ -340,6 +341,59 @@ def _least_order_normalised(family: str, ratio: float, ap: float, as_: float) ->
     return _LEAST_ORDERS.get((family, ratio, ap, as_), lambda: _find_least_order_normalised(family, ratio, ap, as_))
 
 
+def _agm(a: float, b: float) -> float:
+    """Arithmetic-geometric mean of a, b > 0 (quadratic convergence) [A&S 17.6]."""
+    for _ in range(64):
+        if abs(a - b) <= 1e-16 * a:
+            break
+        a, b = (a + b) / 2.0, math.sqrt(a * b)
+    return a
+
+
+def ellipk(m: float) -> float:
+    """Complete elliptic integral of the first kind, parameter m = k^2 in [0, 1]:
+    K(m) = pi / (2 AGM(1, sqrt(1 - m))) [A&S 17.6.1]; infinite at m = 1."""
+    if not 0.0 <= m <= 1.0:
+        raise ValueError(f"elliptic parameter {m} outside [0, 1]")
+    return math.inf if m == 1.0 else math.pi / (2.0 * _agm(1.0, math.sqrt(1.0 - m)))
+
+
+def ellipkm1(p: float) -> float:
+    """K(1 - p) = pi / (2 AGM(1, sqrt(p))) [A&S 17.6.1], accurate where 1 - p would round to 1
+    (p of 1e-18 is an elliptic mask of 0.001 dB ripple and 140 dB rejection)."""
+    if not 0.0 <= p <= 1.0:
+        raise ValueError(f"elliptic parameter {p} outside [0, 1]")
+    return math.inf if p == 0.0 else math.pi / (2.0 * _agm(1.0, math.sqrt(p)))
+
+
+def order_estimate(family: str, ratio: float, ap: float, as_: float) -> tuple[float, float]:
+    """Real (unrounded) order for a low-pass mask with f_pass = 1, f_stop = ``ratio``, and the
+    frequency where a chebyshev2 of the rounded-up order loses ``ap`` (1.0 for the others).
+
+    Closed forms [WT], [ZUM], the ones scipy's ``buttord``/``cheb1ord``/``cheb2ord``/``ellipord``
+    evaluate: with ep2 = 10^(Ap/10) - 1, es2 = 10^(As/10) - 1, butterworth
+    n = log10(es2/ep2) / (2 log10 r); chebyshev n = acosh(sqrt(es2/ep2)) / acosh(r) (chebyshev2:
+    the loss is Ap at cosh(acosh(sqrt(es2/ep2)) / N)); elliptic n = K(m) K(1 - m1) / (K(1 - m) K(m1)),
+    m = 1/r^2, m1 = ep2/es2.  Computed here because importing scipy.signal costs about a second,
+    which a rebuild that meets one new mask should not pay (the tests hold these to scipy's).
+    """
+    ln10 = math.log(10.0)
+    ep2 = math.expm1(0.1 * ap * ln10)
+    es2 = math.expm1(0.1 * as_ * ln10)
+    if family == "butterworth":
+        return math.log10(es2 / ep2) / (2.0 * math.log10(ratio)), 1.0
+    if family in ("chebyshev1", "chebyshev2"):
+        v = math.acosh(math.sqrt(es2 / ep2))
+        real = v / math.acosh(ratio)
+        if family == "chebyshev1":
+            return real, 1.0
+        return real, math.cosh(v / max(1, math.ceil(real)))
+    if family == "elliptic":
+        m, m1 = 1.0 / ratio**2, ep2 / es2
+        return ellipk(m) * ellipkm1(m1) / (ellipkm1(m) * ellipk(m1)), 1.0
+    raise ValueError(f"no closed-form order for {family!r}")
+
+
 def _find_least_order_normalised(family: str, ratio: float, ap: float, as_: float) -> tuple[int, float] | None:
     """Least order and corner for f_pass = 1, f_stop = ratio; None when above MAX_ORDER."""
     if family == "bessel":
@@ -351,19 +405,13 @@ def _find_least_order_normalised(family: str, ratio: float, ap: float, as_: floa
             if _meets("bessel", n, corner, 0.1, 80.0, 1.0, ratio, ap, as_):
                 return n, corner
         return None
-    from scipy import signal
-
-    fn = {"butterworth": signal.buttord, "chebyshev1": signal.cheb1ord,
-          "chebyshev2": signal.cheb2ord, "elliptic": signal.ellipord}[family]
-    with warnings.catch_warnings(), np.errstate(all="ignore"):
-        warnings.simplefilter("ignore")
-        try:
-            n_raw, wn = fn(1.0, ratio, ap, as_, analog=True)
-        except (ValueError, ArithmeticError):
-            return None
-    wn_f = float(np.atleast_1d(wn)[0])
-    if not (math.isfinite(wn_f) and wn_f > 0) or n_raw > MAX_ORDER + 1:
+    try:
+        real, wn_f = order_estimate(family, ratio, ap, as_)
+    except (ValueError, ArithmeticError):
         return None
+    if not (math.isfinite(real) and math.isfinite(wn_f) and wn_f > 0) or real > MAX_ORDER + 1:
+        return None
+    n_raw = max(1, math.ceil(real))
     ripple = ap if family in ("chebyshev1", "elliptic") else 0.1
     stop = as_ if family in ("chebyshev2", "elliptic") else 80.0
 
@@ -375,8 +423,8 @@ def _find_least_order_normalised(family: str, ratio: float, ap: float, as_: floa
             return 1.0 / x if x else float(wn_f)
         return 1.0  # chebyshev1, elliptic: corner = ripple edge = f_pass
 
-    # scipy rounds a real order up with ceil(); a real order that sits on an integer can come
-    # back one too high, and numerics may leave one too low: check against the designed response.
+    # the real order rounded up; one that sits on an integer can come out one too high, and
+    # numerics may leave one too low: check against the designed response.
     n = int(n_raw)
     if n > 1 and n - 1 <= MAX_ORDER and _meets(family, n - 1, corner_for(n - 1), ripple, stop, 1.0, ratio, ap, as_):
         n -= 1
@@ -392,10 +440,11 @@ def least_order(
 ) -> OrderDesign | None:
     """Least order of ``family``: loss <= ``pass_loss_db`` at ``f_pass_hz``, >= ``stop_atten_db`` at ``f_stop_hz``.
 
-    Uses scipy's ``buttord``/``cheb1ord``/``cheb2ord``/``ellipord`` with ``analog=True``, whose
-    closed forms are [WT], [ZUM]: butterworth n >= log10(es2/ep2) / (2 log10 r); chebyshev
-    n >= acosh(sqrt(es2/ep2)) / acosh(r); elliptic n >= K(m) K(1-m1) / (K(1-m) K(m1)), with
-    r = f_stop/f_pass, ep2 = 10^(Ap/10) - 1, es2 = 10^(As/10) - 1, m = 1/r^2, m1 = ep2/es2.
+    Starts from the real order of :func:`order_estimate` (the closed forms of scipy's
+    ``buttord``/``cheb1ord``/``cheb2ord``/``ellipord``, analog) [WT], [ZUM]: butterworth
+    n >= log10(es2/ep2) / (2 log10 r); chebyshev n >= acosh(sqrt(es2/ep2)) / acosh(r); elliptic
+    n >= K(m) K(1-m1) / (K(1-m) K(m1)), with r = f_stop/f_pass, ep2 = 10^(Ap/10) - 1,
+    es2 = 10^(As/10) - 1, m = 1/r^2, m1 = ep2/es2.
     Bessel has no closed form: each order is tried, its corner set so the passband loss is
     exactly Ap.  The order is then confirmed on the designed response (an exact-integer real
     order is not rounded up).  The corner follows the family's definition: butterworth at
@@ -423,14 +472,28 @@ def least_order(
 def frequency_for_attenuation(filt: AnalogFilter, atten_db: float) -> float | None:
     """Lowest frequency from which the filter's loss stays at or above ``atten_db``.
 
-    Found on a logarithmic grid of the response (running minimum from the top down) and refined
-    with Brent's method; None when the filter never gets there (a chebyshev2 or elliptic whose
-    stopband floor is below ``atten_db``).
+    Found on a logarithmic grid of the normalised response (running minimum from the top down)
+    and refined with Brent's method, once per prototype and attenuation (it scales with the
+    corner); None when the filter never gets there (a chebyshev2 or elliptic whose stopband
+    floor is below ``atten_db``).
     """
     if atten_db <= 0:
         return 0.0
     if filt.family in ("chebyshev2", "elliptic") and atten_db > filt.stopband_db + 1e-9:
         return None
+    key = (filt.family, filt.order, filt.ripple_db, filt.stopband_db, float(atten_db))
+    x = _ATTENUATION_POINTS.get(key, lambda: _find_attenuation_point(filt, float(atten_db)))
+    return None if x is None else x * filt.corner_hz
+
+
+_ATTENUATION_POINTS: Memo[tuple[str, int, float, float, float], float | None] = Memo(
+    "attenuation points",
+    lambda key, v: (_is_key(key, (str, int, float, float, float)) and (v is None or type(v) is float)))
+"""Normalised frequencies of :func:`frequency_for_attenuation`, by prototype and attenuation."""
+
+
+def _find_attenuation_point(filt: AnalogFilter, atten_db: float) -> float | None:
+    """:func:`frequency_for_attenuation` for a corner of 1."""
     z, p, k = _normalised(filt)
     x = np.logspace(-3, 8, 2201)
     loss = _loss_normalised(z, p, k, x)
@@ -440,7 +503,7 @@ def frequency_for_attenuation(filt: AnalogFilter, atten_db: float) -> float | No
         return None
     i = int(ok[0])
     if i == 0:
-        return float(x[0] * filt.corner_hz)
+        return float(x[0])
 
     def g(v: float) -> float:
         return float(_loss_normalised(z, p, k, np.array([v]))[0]) - atten_db
@@ -448,8 +511,7 @@ def frequency_for_attenuation(filt: AnalogFilter, atten_db: float) -> float | No
     from scipy import optimize
 
     lo, hi = float(x[i - 1]), float(x[i])
-    root = float(optimize.brentq(g, lo, hi, xtol=1e-14, rtol=1e-12)) if g(lo) < 0 < g(hi) else hi
-    return root * filt.corner_hz
+    return float(optimize.brentq(g, lo, hi, xtol=1e-14, rtol=1e-12)) if g(lo) < 0 < g(hi) else hi
 
 
 def corner_for_droop(filt: AnalogFilter, f_hz: float, loss_db: float) -> float | None:
