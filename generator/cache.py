@@ -174,7 +174,18 @@ class Cached:
     system: System | None = None
     designs: object = None
     shards: dict[str, tuple[str, list[tuple[str, str]]]] = field(default_factory=dict)
-    """shard file -> (its SHA-256, the (file, key) pairs it held)"""
+    """shard file -> (its seal, the (file, key) pairs it held)"""
+
+    def figures_for(self, analysis: SystemAnalysis) -> dict[str, str]:
+        """The kept figures text of the channels ``analysis`` took from this cache unchanged (the
+        very channel object, the same budget): the starting memo of :func:`report.to_json`."""
+        now = analysis.by_id
+        out: dict[str, str] = {}
+        for r in self.results.values():
+            cid = r.channel.id
+            if cid in self.figures and cid in now and now[cid].channel is r.channel and now[cid].budget == r.budget:
+                out[cid] = self.figures[cid]
+        return out
 
 
 @dataclass
@@ -250,8 +261,8 @@ class Reuse:
                 cached.system = system[1] if isinstance(system[1], System) else None
             cached.designs = shared.get("designs")
         shards = listed.get("shards")
-        for name, digest in sorted(shards.items()) if isinstance(shards, dict) else ():
-            entries = self._unpickle(name, digest) if isinstance(name, str) else None
+        for name, sealed in sorted(shards.items()) if isinstance(shards, dict) else ():
+            entries = self._unpickle(name, sealed) if isinstance(name, str) else None
             if not isinstance(entries, dict):
                 continue
             held: list[tuple[str, str]] = []
@@ -263,7 +274,7 @@ class Reuse:
                 if entry[0] == self.result_key(rel):
                     cached.results[rel] = entry[1]
                     cached.figures[entry[1].channel.id] = entry[2]
-            cached.shards[name] = (digest, held)
+            cached.shards[name] = (sealed, held)
         return cached
 
     def take(self, rel: str, key: str | None, tmp: Path) -> bool:
@@ -292,12 +303,16 @@ def shard_of(rel: str) -> str:
     return f"{CACHE}/channels-{hashlib.sha256(rel.encode('utf-8')).digest()[0] % RESULT_SHARDS:02d}.pickle"
 
 
-def write_shards(tmp: Path, reuse: Reuse, signing: bytes, analysis: SystemAnalysis, figures: dict[str, str],
-                  cached: Cached) -> dict[str, str]:
-    """Write the channel shards of the build cache into ``tmp``; returns file -> seal.
+def write_shards(tmp: Path, reuse: Reuse, analysis: SystemAnalysis, figures: dict[str, str],
+                 cached: Cached) -> dict[str, str] | None:
+    """Write the channel shards of the build cache into ``tmp``; returns file -> seal, or None
+    (nothing written) without inputs keys or a signing key.
 
     A shard whose entries are the very ones read from the current site is carried over (linked)
     rather than pickled again."""
+    signing = reuse.key
+    if signing is None or reuse.inputs is None:
+        return None
     shards: dict[str, dict[str, tuple[str, ChannelResult, str]]] = {}
     for r in analysis.channels:
         rel = r.channel.source.file
@@ -317,13 +332,15 @@ def write_shards(tmp: Path, reuse: Reuse, signing: bytes, analysis: SystemAnalys
     return listing
 
 
-def write_shared(tmp: Path, reuse: Reuse, signing: bytes, analysis: SystemAnalysis) -> str:
+def write_shared(tmp: Path, reuse: Reuse, analysis: SystemAnalysis) -> str | None:
     """Write the loaded system and this process's numerical memos (``dsp.memo``) into ``tmp``;
-    returns the file's seal.  Written last, once every page (and with it every chart's filter
-    designs) is done."""
+    returns the file's seal, or None (nothing written) without a signing key.  Written last, once
+    every page (and with it every chart's filter designs) is done."""
+    if reuse.key is None:
+        return None
     data = _pickled({"system": (reuse.system_key(), analysis.spec.system), "designs": memo.known()})
     write(tmp, SHARED_CACHE, data)
-    return seal(data, signing)
+    return seal(data, reuse.key)
 
 
 def manifest_text(reuse: Reuse, keys: dict[str, str], count: int, channels: int, findings: list[Finding],

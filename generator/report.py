@@ -18,8 +18,7 @@ from __future__ import annotations
 import json
 import math
 import xml.etree.ElementTree as ET
-from collections.abc import Iterable
-from functools import partial
+from collections.abc import Iterable, Mapping, Sequence
 from typing import Any
 
 from . import __version__
@@ -84,22 +83,19 @@ def _system_document(analysis: SystemAnalysis) -> dict[str, Any]:
     }
 
 
+def _channel_head(r: ChannelResult, mine: Mapping[str, Sequence[Finding]]) -> dict[str, str]:
+    """A channel's entry in the JSON contract but its figures (``mine``: findings by channel)."""
+    ch = r.channel
+    return {"id": ch.id, "kind": ch.kind, "file": ch.source.file, "status": worst_status(mine.get(ch.id, ()))}
+
+
 def spec_document(analysis: SystemAnalysis, findings: list[Finding]) -> dict[str, Any]:
     """The JSON contract shared by ``check --format json`` and the site's data/spec.json."""
     mine = by_channel(findings)
     doc: dict[str, Any] = _clean({
         "format": JSON_FORMAT,
         "system": _system_document(analysis),
-        "channels": [
-            {
-                "id": r.channel.id,
-                "kind": r.channel.kind,
-                "file": r.channel.source.file,
-                "status": worst_status(mine.get(r.channel.id, ())),
-                "figures": r.figures,
-            }
-            for r in analysis.channels
-        ],
+        "channels": [{**_channel_head(r, mine), "figures": r.figures} for r in analysis.channels],
         "findings": [finding_dict(f) for f in findings],
     })
     return doc
@@ -144,15 +140,13 @@ def to_json(analysis: SystemAnalysis, findings: list[Finding], ascii_only: bool 
     """
     memo = memo if memo is not None and not ascii_only else {}
     mine = by_channel(findings)
-    text = partial(json.dumps, ensure_ascii=ascii_only)
 
     def channel(r: ChannelResult) -> _Encoded:
-        ch = r.channel
-        figures = memo.get(ch.id)
+        figures = memo.get(r.channel.id)
         if figures is None:
-            figures = memo[ch.id] = _compact(r.figures, ascii_only)
-        return _Encoded(f'{{"id": {text(ch.id)}, "kind": {text(ch.kind)}, "file": {text(ch.source.file)}, '
-                        f'"status": {text(worst_status(mine.get(ch.id, ())))}, "figures": {figures}}}')
+            figures = memo[r.channel.id] = _compact(r.figures, ascii_only)
+        head = json.dumps(_channel_head(r, mine), ensure_ascii=ascii_only)  # strings only: no _clean
+        return _Encoded(f'{head[:-1]}, "figures": {figures}}}')
 
     doc = {
         "format": JSON_FORMAT,

@@ -48,7 +48,6 @@ per CPU renders channel pages in coarse chunks.
 from __future__ import annotations
 
 import gc
-import importlib.metadata
 import importlib.resources
 import multiprocessing
 import os
@@ -213,13 +212,12 @@ def shared_pages(ctx: render.Context, env: jinja2.Environment,
 
 
 def page_count(analysis: SystemAnalysis) -> int:
-    return 5 + len(analysis.channels) + len(render.book_sections(analysis))
+    return len(SHARED_PAGES) + len(analysis.channels) + len(render.book_sections(analysis))
 
 
 # ---------------------------------------------------------------------------------------------
 # The output folder
 # ---------------------------------------------------------------------------------------------
-
 
 
 def check_output(output: Path, specs: Path) -> None:
@@ -250,7 +248,6 @@ def check_output(output: Path, specs: Path) -> None:
                             f"and no {MARKER} marker; empty it or choose another folder")
     if not out.parent.is_dir():
         raise SpecError(f"cannot build into {output}: its parent folder {out.parent} does not exist")
-
 
 
 def _remove_tree(folder: Path) -> None:
@@ -302,13 +299,6 @@ def _clean_leftovers(out: Path) -> None:
             shutil.rmtree(entry, ignore_errors=True)
 
 
-
-# ---------------------------------------------------------------------------------------------
-# Keys and the manifest
-# ---------------------------------------------------------------------------------------------
-
-
-
 # ---------------------------------------------------------------------------------------------
 # Filling the temporary folder
 # ---------------------------------------------------------------------------------------------
@@ -358,14 +348,11 @@ def _data_and_shards(job: _Job) -> dict[str, str] | None:
     text writing spec.json encodes); returns the shards' listing."""
     analysis = job.ctx.analysis
     write(job.tmp, "data/spec.json", to_json(analysis, job.ctx.findings, memo=job.figures))
-    if job.reuse is None or job.reuse.inputs is None or job.reuse.key is None:
-        return None
-    return write_shards(job.tmp, job.reuse, job.reuse.key, analysis, job.figures, job.cached)
+    return None if job.reuse is None else write_shards(job.tmp, job.reuse, analysis, job.figures, job.cached)
 
 
 def _side() -> dict[str, str] | None:
-    """The side worker's task (measured: adding shared pages to it made it the slower side, its
-    copy-on-write pages of the forked heap cost more than rendering them in the parent)."""
+    """The side worker's task: :func:`_data_and_shards` of the inherited job."""
     assert _JOB is not None
     return _data_and_shards(_JOB)
 
@@ -437,9 +424,8 @@ def _fill(tmp: Path, analysis: SystemAnalysis, findings: list[Finding], env: jin
                 memo.remember(designs)
                 tick(n, "channels/")
         shards = _data_and_shards(job) if side is None else side.get()
-    listing = None
-    if shards is not None and reuse is not None and reuse.key is not None:
-        listing = {"shared": write_shared(tmp, reuse, reuse.key, analysis), "shards": shards}
+    shared = write_shared(tmp, reuse, analysis) if reuse is not None and shards is not None else None
+    listing = None if shared is None else {"shared": shared, "shards": shards}
     write(tmp, MARKER, MARKER_TEXT)
     return done, keys, listing
 
@@ -508,12 +494,7 @@ def write_site(analysis: SystemAnalysis, findings: list[Finding], output: Path, 
     site's cache (its figures are reused for the channels whose analysis was).
     """
     cached = cached if cached is not None else Cached()
-    by_id = analysis.by_id
-    figures = {}
-    for r in cached.results.values():
-        now = by_id.get(r.channel.id)
-        if now is not None and now.channel is r.channel and now.budget == r.budget and r.channel.id in cached.figures:
-            figures[r.channel.id] = cached.figures[r.channel.id]
+    figures = cached.figures_for(analysis)
     check_output(output, specs)
     env = environment()
     out = output.resolve()
@@ -530,7 +511,6 @@ def write_site(analysis: SystemAnalysis, findings: list[Finding], output: Path, 
         shutil.rmtree(tmp, ignore_errors=True)
         raise
     return count
-
 
 
 def _intact(out: Path, previous: dict[str, Any]) -> bool:
