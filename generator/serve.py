@@ -27,6 +27,8 @@ from .errors import SpecError, SpecErrors
 from .site import build
 
 HOST = "127.0.0.1"
+SETTLE_S = 0.05
+"""Pause between the scans that must agree before a rebuild, so a save still being written is not built."""
 VERSION_PATH = "/__specfold/version"
 RELOAD_SCRIPT = (
     "<script>(function(){var v=null;function poll(){fetch('" + VERSION_PATH + "',{cache:'no-store'})"
@@ -132,9 +134,19 @@ class Preview:
     def _watch(self, seen: tuple[tuple[str, int, int], ...]) -> None:
         while not self._stop.wait(self.interval):
             now = snapshot(self.specs)
-            if now != seen:
-                seen = now
-                self.rebuild()
+            if now == seen:
+                continue
+            # Editors truncate then write: build only once two scans SETTLE_S apart agree, so a
+            # half-written file does not flash a false error page before the real one.
+            while not self._stop.wait(SETTLE_S):
+                again = snapshot(self.specs)
+                if again == now:
+                    break
+                now = again
+            else:
+                return
+            seen = now
+            self.rebuild()
 
     def stop(self) -> None:
         """Stop watching and serving; returns when both threads have ended."""

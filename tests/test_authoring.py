@@ -17,7 +17,7 @@ from pathlib import Path
 
 import pytest
 
-from generator import schema
+from generator import schema, serve
 from generator.analysis import analyze
 from generator.cli import EXIT_BAD_INPUT, EXIT_OK, main
 from generator.errors import SpecErrors
@@ -317,19 +317,20 @@ def test_serve_rebuilds_shows_errors_and_stops(tmp_path: Path) -> None:
         channel.write_text(good.replace("Test accelerometer", "Edited accelerometer"), encoding="utf-8")
         started = time.perf_counter()
         while "Edited accelerometer" not in page:
+            # a liveness bound only; the 2 s goal is measured by tests/bench/preview.py
             assert time.perf_counter() - started < 5, "the edit did not show within 5 s"
             time.sleep(0.05)
             page = _get(base + "channels/ACC-1.html")
-        latency = time.perf_counter() - started
-        assert latency < 2.0, f"edit visible after {latency:.2f} s"  # the goal: an edit shows within two seconds
         version = _get(base + VERSION_PATH.lstrip("/"))
         channel.write_text(good.replace('band = ["2 Hz", "10 kHz"]', 'band = ["2 Hz", "<b>x</b>"]'), encoding="utf-8")
         started = time.perf_counter()
-        while "problem" not in page:
-            assert time.perf_counter() - started < 5
+        # wait for the error page naming the bad value (not any error page: a scan can in principle
+        # still catch a save half-written, which shows a different problem until the next scan)
+        while "&lt;b&gt;x&lt;/b&gt;" not in page:
+            assert time.perf_counter() - started < 5, "the error page did not show within 5 s"
             time.sleep(0.05)
             page = _get(base + "index.html")
-        assert "&lt;b&gt;x&lt;/b&gt;" in page and "<b>x</b>" not in page
+        assert "problem" in page and "<b>x</b>" not in page
         assert _get(base + VERSION_PATH.lstrip("/")) != version
         channel.write_text(good, encoding="utf-8")
         started = time.perf_counter()
@@ -342,6 +343,32 @@ def test_serve_rebuilds_shows_errors_and_stops(tmp_path: Path) -> None:
     assert not any(t.is_alive() for t in preview._threads)
     with pytest.raises(OSError):
         _get(f"http://127.0.0.1:{port}/")
+
+
+def test_watch_waits_for_a_save_to_settle(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    # Scripted scans: a change appears half-written (size 3), then whole (size 9), then stays.
+    # One rebuild must follow, after the third scan agrees with the second, not one on the first.
+    start = (("channels/A.md", 1, 9),)
+    half = (("channels/A.md", 2, 3),)
+    whole = (("channels/A.md", 3, 9),)
+    script = [half, whole, whole]
+    taken: list[int] = []
+    preview = Preview(tmp_path, tmp_path / "site", interval=0.001)
+    scans_at_rebuild: list[int] = []
+
+    def fake_snapshot(specs: Path) -> tuple[tuple[str, int, int], ...]:
+        taken.append(1)
+        return script[min(len(taken), len(script)) - 1]
+
+    def fake_rebuild() -> None:
+        scans_at_rebuild.append(len(taken))
+        preview._stop.set()
+
+    monkeypatch.setattr(serve, "snapshot", fake_snapshot)
+    monkeypatch.setattr(serve, "SETTLE_S", 0.001)
+    monkeypatch.setattr(preview, "rebuild", fake_rebuild)
+    preview._watch(start)
+    assert scans_at_rebuild == [3]
 
 
 def test_serve_command_reports_port_and_stops_on_ctrl_c(tmp_path: Path) -> None:

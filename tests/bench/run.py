@@ -22,6 +22,8 @@ written as JSON.
 The built overview is then opened in headless Chromium (:mod:`tests.bench.overview`): its open
 time (navigation start to the table laid out) and the median latency of a filter keystroke, in
 milliseconds, under ``overview`` in the JSON (null where Chromium or Playwright is missing).
+Last, the live preview is started on that site (:mod:`tests.bench.preview`) and the time from
+saving a note edit to the served page showing it is reported under ``preview``.
 """
 
 from __future__ import annotations
@@ -39,7 +41,7 @@ import time
 from pathlib import Path
 from typing import Any
 
-from . import overview
+from . import overview, preview
 from .synth import write_system
 
 ROOT = Path(__file__).resolve().parents[2]
@@ -121,6 +123,7 @@ def measure(n: int, runs: int, work: Path) -> dict[str, Any]:
         times["one_param"].append(_run(["-m", "generator", "build", str(specs), "-o", str(site_dir)])[0])
     site_bytes, cache_bytes, page_median = _sizes(site_dir)
     browser = overview.measure(site_dir, runs)
+    served = preview.measure(specs, site_dir, runs)
     shutil.rmtree(base_out, ignore_errors=True)
     med = {k: statistics.median(v) for k, v in times.items()}
     base = med["baseline"]
@@ -136,6 +139,7 @@ def measure(n: int, runs: int, work: Path) -> dict[str, Any]:
         "cache_mb": round(cache_bytes / 1e6, 2),
         "median_channel_page_kb": round(page_median / 1000, 1),
         "overview": browser,
+        "preview": served,
     }
 
 
@@ -154,6 +158,10 @@ def _print(r: dict[str, Any]) -> None:
     else:
         print(f"  overview page: opens in {o['open_ms']:.0f} ms; filter keystroke {o['keystroke_ms']:.1f} ms median, "
               f"{o['keystroke_ms_max']:.1f} ms worst")
+
+
+    v = r["preview"]
+    print(f"  live preview: an edit shows in {v['edit_shown_s']:.2f} s median, {v['edit_shown_s_max']:.2f} s worst")
 
 
 def main() -> None:
