@@ -328,6 +328,7 @@ def _cmd_export(args: argparse.Namespace) -> int:
 
 def _cmd_serve(args: argparse.Namespace) -> int:
     import shutil
+    import signal
     import threading
 
     from .serve import Preview
@@ -344,6 +345,10 @@ def _cmd_serve(args: argparse.Namespace) -> int:
         print(f"specfold serve: {message}", file=sys.stderr, flush=True)
 
     preview = Preview(Path(args.specs), Path(output), args.port, on_event=say)
+    # Ctrl-C (or SIGTERM) only sets a flag: a KeyboardInterrupt raised between two statements,
+    # say right after the "serving" line, would skip the clean stop below.
+    stopping = threading.Event()
+    previous = {sig: signal.signal(sig, lambda *_: stopping.set()) for sig in (signal.SIGINT, signal.SIGTERM)}
     try:
         try:
             port = preview.start()
@@ -352,12 +357,13 @@ def _cmd_serve(args: argparse.Namespace) -> int:
                             "try another --port, or 0 for any free one") from None
         print(f"serving {args.specs} at http://127.0.0.1:{port}/ (port {port}); "
               "pages reload when a spec is saved; Ctrl-C stops", flush=True)
-        try:
-            threading.Event().wait()
-        except KeyboardInterrupt:
-            say("stopping")
+        while not stopping.wait(0.5):
+            pass
+        say("stopping")
     finally:
         preview.stop()
+        for sig, handler in previous.items():
+            signal.signal(sig, handler)
         if scratch is not None:
             shutil.rmtree(scratch, ignore_errors=True)
     return EXIT_OK
