@@ -9,7 +9,8 @@ no-op build reports them without checking again) and the SHA-256 of every cache 
   (filter prototypes, least orders...), so a rebuild meeting only known filters imports no scipy;
 - ``channels-NN.pickle``: :data:`RESULT_SHARDS` shards by a hash of the channel file's path, each
   channel as loaded and analysed with its figures as JSON text (the memo of
-  :func:`generator.report.to_json`), keyed by tool, system.toml and the file.
+  :func:`generator.report.to_json`) and its channel-rule findings, keyed by tool, system.toml and
+  the file.
 
 Unpickling runs code named in the file, so a cache file is unpickled only when its seal, an
 HMAC-SHA256 under a key kept outside the site (:func:`signing_key`, made once per user and
@@ -31,6 +32,7 @@ import json
 import os
 import pickle
 import secrets
+from collections.abc import Iterator, Mapping
 from dataclasses import dataclass, field
 from pathlib import Path
 from types import MappingProxyType
@@ -46,7 +48,7 @@ from .rules import Finding
 
 CACHE = ".specfold-cache"
 MANIFEST = f"{CACHE}/manifest.json"
-MANIFEST_FORMAT = 2
+MANIFEST_FORMAT = 3
 SHARED_CACHE = f"{CACHE}/shared.pickle"
 """system.toml as loaded, and the filter prototypes and least orders found: a rebuild under the
 same system.toml does not parse it again, nor import scipy for filters it has already met."""
@@ -171,21 +173,30 @@ class Cached:
     """channel file -> its loaded channel and per-channel analysis, for files whose key holds"""
     figures: dict[str, str] = field(default_factory=dict)
     """channel id -> its figures as JSON text (the memo of :func:`report.to_json`)"""
+    findings: dict[str, tuple[Finding, ...]] = field(default_factory=dict)
+    """channel id -> its channel-rule findings before waivers (:func:`rules.channel_findings`)"""
     system: System | None = None
     designs: object = None
     shards: dict[str, tuple[str, list[tuple[str, str]]]] = field(default_factory=dict)
     """shard file -> (its seal, the (file, key) pairs it held)"""
 
-    def figures_for(self, analysis: SystemAnalysis) -> dict[str, str]:
-        """The kept figures text of the channels ``analysis`` took from this cache unchanged (the
-        very channel object, the same budget): the starting memo of :func:`report.to_json`."""
+    def _unchanged(self, analysis: SystemAnalysis) -> Iterator[str]:
+        """Ids of the channels ``analysis`` took from this cache unchanged: the very channel object
+        (so the same file under the same system.toml and tool) with an equal budget."""
         now = analysis.by_id
-        out: dict[str, str] = {}
         for r in self.results.values():
             cid = r.channel.id
-            if cid in self.figures and cid in now and now[cid].channel is r.channel and now[cid].budget == r.budget:
-                out[cid] = self.figures[cid]
-        return out
+            if cid in now and now[cid].channel is r.channel and now[cid].budget == r.budget:
+                yield cid
+
+    def figures_for(self, analysis: SystemAnalysis) -> dict[str, str]:
+        """The kept figures text of the unchanged channels: the starting memo of :func:`report.to_json`."""
+        return {cid: self.figures[cid] for cid in self._unchanged(analysis) if cid in self.figures}
+
+    def findings_for(self, analysis: SystemAnalysis) -> dict[str, tuple[Finding, ...]]:
+        """The kept channel-rule findings of the unchanged channels: what a channel rule returns
+        depends on the channel's result and system.toml alone (the contract in :mod:`.rules`)."""
+        return {cid: self.findings[cid] for cid in self._unchanged(analysis) if cid in self.findings}
 
 
 @dataclass
@@ -267,13 +278,16 @@ class Reuse:
                 continue
             held: list[tuple[str, str]] = []
             for rel, entry in entries.items():
-                if not (isinstance(entry, tuple) and len(entry) == 3 and isinstance(entry[1], ChannelResult)
-                        and isinstance(entry[2], str)):
+                if not (isinstance(entry, tuple) and len(entry) == 4 and isinstance(entry[1], ChannelResult)
+                        and isinstance(entry[2], str) and isinstance(entry[3], (tuple, type(None)))):
                     continue
                 held.append((rel, entry[0]))
                 if entry[0] == self.result_key(rel):
+                    cid = entry[1].channel.id
                     cached.results[rel] = entry[1]
-                    cached.figures[entry[1].channel.id] = entry[2]
+                    cached.figures[cid] = entry[2]
+                    if entry[3] is not None:
+                        cached.findings[cid] = entry[3]
             cached.shards[name] = (sealed, held)
         return cached
 
@@ -304,21 +318,22 @@ def shard_of(rel: str) -> str:
 
 
 def write_shards(tmp: Path, reuse: Reuse, analysis: SystemAnalysis, figures: dict[str, str],
-                 cached: Cached) -> dict[str, str] | None:
+                 cached: Cached, findings: Mapping[str, tuple[Finding, ...]]) -> dict[str, str] | None:
     """Write the channel shards of the build cache into ``tmp``; returns file -> seal, or None
-    (nothing written) without inputs keys or a signing key.
+    (nothing written) without inputs keys or a signing key.  Each entry holds a channel file's key,
+    its result, its ``figures`` text and its channel-rule ``findings`` (None when not given).
 
     A shard whose entries are the very ones read from the current site is carried over (linked)
     rather than pickled again."""
     signing = reuse.key
     if signing is None or reuse.inputs is None:
         return None
-    shards: dict[str, dict[str, tuple[str, ChannelResult, str]]] = {}
+    shards: dict[str, dict[str, tuple[str, ChannelResult, str, tuple[Finding, ...] | None]]] = {}
     for r in analysis.channels:
-        rel = r.channel.source.file
+        rel, cid = r.channel.source.file, r.channel.id
         key = reuse.result_key(rel)
-        if key is not None and r.channel.id in figures:
-            shards.setdefault(shard_of(rel), {})[rel] = (key, r, figures[r.channel.id])
+        if key is not None and cid in figures:
+            shards.setdefault(shard_of(rel), {})[rel] = (key, r, figures[cid], findings.get(cid))
     listing: dict[str, str] = {}
     for name, entries in sorted(shards.items()):
         old = cached.shards.get(name)

@@ -53,7 +53,7 @@ import multiprocessing
 import os
 import shutil
 import tempfile
-from collections.abc import Callable, Iterator
+from collections.abc import Callable, Iterator, Mapping
 from contextlib import ExitStack, contextmanager
 from dataclasses import dataclass
 from pathlib import Path
@@ -83,7 +83,7 @@ from .files import carry, inside, regular_file, write
 from .load import load_spec
 from .propose import flagged_channels, propose
 from .report import to_json
-from .rules import Finding, all_rules, run_rules
+from .rules import Finding, all_rules, channel_findings, run_rules
 
 MARKER = ".specfold-site"
 MARKER_TEXT = "This folder is a site built by specfold; the next build replaces all of it.\n"
@@ -314,6 +314,7 @@ class _Job:
     figures: dict[str, str]
     reuse: Reuse | None
     cached: Cached
+    per_channel: Mapping[str, tuple[Finding, ...]]
 
 
 _JOB: _Job | None = None
@@ -348,7 +349,9 @@ def _data_and_shards(job: _Job) -> dict[str, str] | None:
     text writing spec.json encodes); returns the shards' listing."""
     analysis = job.ctx.analysis
     write(job.tmp, "data/spec.json", to_json(analysis, job.ctx.findings, memo=job.figures))
-    return None if job.reuse is None else write_shards(job.tmp, job.reuse, analysis, job.figures, job.cached)
+    if job.reuse is None:
+        return None
+    return write_shards(job.tmp, job.reuse, analysis, job.figures, job.cached, job.per_channel)
 
 
 def _side() -> dict[str, str] | None:
@@ -370,11 +373,13 @@ def _pool_size(todo: int) -> int:
 
 def _fill(tmp: Path, analysis: SystemAnalysis, findings: list[Finding], env: jinja2.Environment,
           progress: Progress | None, reuse: Reuse | None = None, figures: dict[str, str] | None = None,
-          cached: Cached | None = None) -> tuple[int, dict[str, str], dict[str, Any] | None]:
+          cached: Cached | None = None, per_channel: Mapping[str, tuple[Finding, ...]] | None = None,
+          ) -> tuple[int, dict[str, str], dict[str, Any] | None]:
     """Write the whole site into ``tmp``; returns the number of HTML pages, the page keys and the
     listing of the cache written (None without a reuse).
 
-    ``figures`` is the memo of :func:`report.to_json` (channel id -> figures as JSON text)."""
+    ``figures`` is the memo of :func:`report.to_json` (channel id -> figures as JSON text);
+    ``per_channel`` the channel-rule findings the cache keeps (:func:`rules.channel_findings`)."""
     global _JOB
     assets = tmp / "assets"
     assets.mkdir()
@@ -398,7 +403,7 @@ def _fill(tmp: Path, analysis: SystemAnalysis, findings: list[Finding], env: jin
     if sections:
         (tmp / "book").mkdir(exist_ok=True)
     job = _Job(tmp, ctx, env, sections, figures if figures is not None else {}, reuse,
-               cached if cached is not None else Cached())
+               cached if cached is not None else Cached(), per_channel if per_channel is not None else {})
     with ExitStack() as stack:
         side = None
         if _forking(len(analysis.channels)):
@@ -486,12 +491,14 @@ def _swap(tmp: Path, out: Path) -> None:
 
 
 def write_site(analysis: SystemAnalysis, findings: list[Finding], output: Path, specs: Path,
-               progress: Progress | None = None, reuse: Reuse | None = None, cached: Cached | None = None) -> int:
+               progress: Progress | None = None, reuse: Reuse | None = None, cached: Cached | None = None,
+               per_channel: Mapping[str, tuple[Finding, ...]] | None = None) -> int:
     """Render the site into a temporary sibling of ``output`` and swap it in; returns the page count.
 
     With ``reuse``, unchanged channel pages come from the current site and the new site gets a
     manifest and a cache for the next build; ``cached`` is what this build took from the current
-    site's cache (its figures are reused for the channels whose analysis was).
+    site's cache (its figures are reused for the channels whose analysis was); ``per_channel``,
+    each channel's channel-rule findings, goes into the new cache.
     """
     cached = cached if cached is not None else Cached()
     figures = cached.figures_for(analysis)
@@ -502,7 +509,7 @@ def write_site(analysis: SystemAnalysis, findings: list[Finding], output: Path, 
     tmp = Path(tempfile.mkdtemp(prefix=f".{out.name}.building-", dir=out.parent))
     try:
         (tmp / BUILDING_MARKER).write_text(f"{os.getpid()}\n", encoding="utf-8")
-        count, keys, listing = _fill(tmp, analysis, findings, env, progress, reuse, figures, cached)
+        count, keys, listing = _fill(tmp, analysis, findings, env, progress, reuse, figures, cached, per_channel)
         if reuse is not None and reuse.inputs is not None:
             write(tmp, MANIFEST, manifest_text(reuse, keys, count, len(analysis.channels), findings, listing or {}))
         _swap(tmp, out)
@@ -590,7 +597,10 @@ def build(specs: Path | str, output: Path | str, progress: Progress | None = Non
         spec = load_spec(specs_path, known={rel: r.channel for rel, r in cached.results.items()},
                          known_system=cached.system)
         analysis = analyze(spec, known={r.channel.id: r for r in cached.results.values()})
-        findings = run_rules(analysis)
+        kept, system = cached.findings_for(analysis), analysis.spec.system
+        per_channel = {r.channel.id: kept[r.channel.id] if r.channel.id in kept else channel_findings(r, system)
+                       for r in analysis.channels}
+        findings = run_rules(analysis, per_channel=per_channel)
         settled()
-        count = write_site(analysis, findings, out_path, specs_path, progress, reuse, cached)
+        count = write_site(analysis, findings, out_path, specs_path, progress, reuse, cached, per_channel)
     return BuildSummary(out_path, count, len(analysis.channels), findings)

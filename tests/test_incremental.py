@@ -194,6 +194,41 @@ def test_unchanged_files_are_not_parsed_again(tmp_path: Path, monkeypatch: pytes
     assert _pages(out) == _fresh(specs, tmp_path / "fresh2")
 
 
+def test_channel_rules_run_again_only_on_the_edited_channel(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    # A channel rule sees only its channel's result and system.toml (the contract in rules/__init__),
+    # so a rebuild takes the other channels' channel-rule findings from the cache.  Reference: a
+    # check from scratch (load, analyze, run_rules with nothing kept).
+    specs = tmp_path / "specs"
+    shutil.copytree(DEMO, specs)
+    out = tmp_path / "site"
+    site.build(specs, out)
+    checked: list[str] = []
+    real = site.channel_findings
+
+    def counting(result: Any, system: Any) -> Any:
+        checked.append(result.channel.id)
+        return real(result, system)
+
+    monkeypatch.setattr(site, "channel_findings", counting)
+    edited = specs / "channels" / "TACHO-HSS.md"  # a channel with a channel-rule finding of its own
+    edited.write_text(edited.read_text(encoding="utf-8") + "\nMount torque checked.\n", encoding="utf-8")
+    summary = site.build(specs, out)
+    assert checked == ["TACHO-HSS"]
+    fresh = run_rules(analyze(load_spec(specs)))
+    assert summary.findings == fresh
+    # the edited channel's own finding is among them
+    assert any(f.channels == ("TACHO-HSS",) and f.rule == "band-edge-droop" for f in fresh)
+    assert len({c for f in fresh for c in f.channels}) > 5  # and the kept ones are many channels'
+    # system.toml changed: no kept finding holds, every channel is checked again
+    checked.clear()
+    system = specs / "system.toml"
+    system.write_text(system.read_text(encoding="utf-8").replace('revision = "B"', 'revision = "C"'), encoding="utf-8")
+    summary = site.build(specs, out)
+    assert sorted(checked) == sorted(p.stem for p in (specs / "channels").rglob("*.md"))
+    assert summary.findings == run_rules(analyze(load_spec(specs)))
+    assert _pages(out) == _fresh(specs, tmp_path / "fresh")
+
+
 def test_worker_processes_write_the_same_site(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
     # The demo's 17 channels stand in for a large system: with a low threshold a build has a side
     # worker (spec.json and the cache shards), and a full build also a pool of page

@@ -1,8 +1,13 @@
 """Rules: one small function per check, registered with an id, severity and explanation.
 
 A rule never raises on bad data: it returns findings.  Channel rules are written as
-``fn(result, analysis) -> Iterable[Hit]``; the registry turns each hit into a located
+``fn(result, system) -> Iterable[Hit]``; the registry turns each hit into a located
 :class:`Finding`.  System rules (budgets, groups) are ``fn(analysis) -> Iterable[Finding]``.
+
+A channel rule sees one channel's result (its budget included) and system.toml, nothing else:
+that is the contract which lets a build keep a channel's findings in its cache (they are taken
+again only while the channel, its budget and system.toml are unchanged).  A check that needs other
+channels is a system rule.
 The site's rule reference and ``specfold rules`` are generated from :data:`RULES`.
 
 To add a rule: write the function in the module of its concern, decorate it, and give
@@ -12,10 +17,11 @@ it a failing and a passing fixture in the tests.
 from __future__ import annotations
 
 import re
-from collections.abc import Callable, Iterable
+from collections.abc import Callable, Iterable, Iterator, Mapping
 from dataclasses import dataclass, replace
 
 from ..analysis import ChannelResult, SystemAnalysis
+from ..model import System
 
 SEVERITIES = ("error", "warning", "info")
 SEVERITY_RANK = {"error": 0, "warning": 1, "info": 2}
@@ -46,7 +52,7 @@ class Hit:
 
 
 SystemCheck = Callable[[SystemAnalysis], Iterable[Finding]]
-ChannelCheck = Callable[[ChannelResult, SystemAnalysis], Iterable[Hit]]
+ChannelCheck = Callable[[ChannelResult, System], Iterable[Hit]]
 
 
 @dataclass(frozen=True)
@@ -59,6 +65,27 @@ class Rule:
 
 
 RULES: dict[str, Rule] = {}
+
+
+@dataclass(frozen=True)
+class ChannelRule:
+    """A rule checked on one channel at a time (see :func:`channel_rule`)."""
+
+    id: str
+    severity: str
+    kinds: tuple[str, ...]
+    fn: ChannelCheck
+
+    def findings(self, result: ChannelResult, system: System) -> Iterator[Finding]:
+        ch = result.channel
+        if ch.kind not in self.kinds:
+            return
+        for hit in self.fn(result, system):
+            line = ch.line_of(hit.path) if hit.path else 1
+            yield Finding(self.id, hit.severity or self.severity, (ch.id,), ch.source.file, line, hit.message)
+
+
+CHANNEL_RULES: dict[str, ChannelRule] = {}
 
 
 def system_rule(rule_id: str, severity: str, title: str, explanation: str) -> Callable[[SystemCheck], SystemCheck]:
@@ -81,16 +108,15 @@ def channel_rule(
     """Register a rule checked channel by channel, for channels of the given kinds."""
 
     def register(fn: ChannelCheck) -> ChannelCheck:
+        rule = ChannelRule(rule_id, severity, kinds, fn)
+
         def check(analysis: SystemAnalysis) -> Iterable[Finding]:
+            system = analysis.spec.system
             for result in analysis.channels:
-                ch = result.channel
-                if ch.kind not in kinds:
-                    continue
-                for hit in fn(result, analysis):
-                    line = ch.line_of(hit.path) if hit.path else 1
-                    yield Finding(rule_id, hit.severity or severity, (ch.id,), ch.source.file, line, hit.message)
+                yield from rule.findings(result, system)
 
         system_rule(rule_id, severity, title, explanation)(check)
+        CHANNEL_RULES[rule_id] = rule
         return fn
 
     return register
@@ -156,11 +182,20 @@ def apply_waivers(findings: Iterable[Finding], analysis: SystemAnalysis) -> list
     return match_waivers(findings, analysis)[0]
 
 
-def run_rules(analysis: SystemAnalysis, only: Iterable[str] | None = None) -> list[Finding]:
+def channel_findings(result: ChannelResult, system: System) -> tuple[Finding, ...]:
+    """Every channel rule's findings on one channel, before waivers, in registration order."""
+    _load_rule_modules()
+    return tuple(f for rule in CHANNEL_RULES.values() for f in rule.findings(result, system))
+
+
+def run_rules(analysis: SystemAnalysis, only: Iterable[str] | None = None,
+              per_channel: Mapping[str, tuple[Finding, ...]] | None = None) -> list[Finding]:
     """Run every registered rule (or only the named ones); findings sorted by place.
 
-    ``stale-waiver`` runs last, on the other rules' findings, and only when every rule ran
-    (with a subset, waivers of the rules left out would look stale).
+    ``per_channel`` gives channels' channel-rule findings already known (:func:`channel_findings`,
+    kept by the build cache), by channel id; the others are computed.  It is used only when every
+    rule runs.  ``stale-waiver`` runs last, on the other rules' findings, and only when every rule
+    ran (with a subset, waivers of the rules left out would look stale).
     """
     _load_rule_modules()
     from .budgets import stale_waivers
@@ -168,8 +203,13 @@ def run_rules(analysis: SystemAnalysis, only: Iterable[str] | None = None) -> li
     wanted = set(only) if only is not None else None
     findings: list[Finding] = []
     for rule in RULES.values():
-        if wanted is None or rule.id in wanted:
+        if (wanted is None and rule.id not in CHANNEL_RULES) or (wanted is not None and rule.id in wanted):
             findings.extend(rule.check(analysis))
+    if wanted is None:
+        system, known = analysis.spec.system, per_channel or {}
+        for result in analysis.channels:
+            kept = known.get(result.channel.id)
+            findings.extend(kept if kept is not None else channel_findings(result, system))
     marked, used = match_waivers(findings, analysis)
     if wanted is None:
         marked.extend(stale_waivers(analysis, used, set(RULES)))

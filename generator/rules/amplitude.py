@@ -5,10 +5,10 @@ from __future__ import annotations
 import math
 from collections.abc import Iterator
 
-from ..analysis import ChannelResult, SystemAnalysis
+from ..analysis import ChannelResult
 from ..analysis.amplitude import AmplitudeResult
 from ..dsp import quantization as q
-from ..model import Channel
+from ..model import Channel, System
 from ..quantities import Span, Unit, format_in_unit, format_percent, format_quantity
 from . import Hit, channel_rule
 
@@ -60,7 +60,7 @@ def _gain_fix(ch: Channel, a: AmplitudeResult) -> str:
     scale: V_pk <= full-scale peak. Beyond it the converter clips and every figure downstream
     is wrong. Lower the gain, choose a less sensitive sensor or a wider full scale.""",
 )
-def clipping(result: ChannelResult, analysis: SystemAnalysis) -> Iterator[Hit]:
+def clipping(result: ChannelResult, system: System) -> Iterator[Hit]:
     a = result.amplitude
     ch = result.channel
     conv = ch.conversion
@@ -86,7 +86,7 @@ def clipping(result: ChannelResult, analysis: SystemAnalysis) -> Iterator[Hit]:
     volts (quantization, converter noise) grows by the same factor relative to the signal. Raise
     the gain towards about 90 % of full scale, or choose a smaller full scale.""",
 )
-def range_underused(result: ChannelResult, analysis: SystemAnalysis) -> Iterator[Hit]:
+def range_underused(result: ChannelResult, system: System) -> Iterator[Hit]:
     a = result.amplitude
     ch = result.channel
     conv = ch.conversion
@@ -110,7 +110,7 @@ def range_underused(result: ChannelResult, analysis: SystemAnalysis) -> Iterator
     exceed the required `resolution`. Use more bits (N >= log2(FSR / (resolution x sensitivity
     x gain))), or raise the gain if the peak still fits the full scale.""",
 )
-def resolution(result: ChannelResult, analysis: SystemAnalysis) -> Iterator[Hit]:
+def resolution(result: ChannelResult, system: System) -> Iterator[Hit]:
     a = result.amplitude
     ch = result.channel
     wanted = ch.signal.resolution
@@ -152,7 +152,7 @@ def _allowed_for(a: AmplitudeResult, name: str, required_db: float) -> float | N
     sine at the channel's peak, add as powers: SNR_total = -10 log10(sum 10^(-SNR_i / 10)). It must
     reach the required `snr`. The message names the largest contribution, the one to fix first.""",
 )
-def noise_floor(result: ChannelResult, analysis: SystemAnalysis) -> Iterator[Hit]:
+def noise_floor(result: ChannelResult, system: System) -> Iterator[Hit]:
     a = result.amplitude
     ch = result.channel
     required = ch.signal.snr_db
@@ -207,7 +207,7 @@ def noise_floor(result: ChannelResult, analysis: SystemAnalysis) -> Iterator[Hit
     SNR_j = -20 log10(2 pi f_high t_j) (ADI MT-007, AN-756), whatever the bits. If that is below the
     required `snr`, lower the jitter to t_j <= 10^(-SNR/20) / (2 pi f_high) or narrow the band.""",
 )
-def jitter_limit(result: ChannelResult, analysis: SystemAnalysis) -> Iterator[Hit]:
+def jitter_limit(result: ChannelResult, system: System) -> Iterator[Hit]:
     a = result.amplitude
     ch = result.channel
     required = ch.signal.snr_db
@@ -234,10 +234,10 @@ def jitter_limit(result: ChannelResult, analysis: SystemAnalysis) -> Iterator[Hi
     the channel file makes its figures disagree with the hardware it names. Remove the key to
     inherit the converter's value, or correct the converter in system.toml.""",
 )
-def bits_mismatch(result: ChannelResult, analysis: SystemAnalysis) -> Iterator[Hit]:
+def bits_mismatch(result: ChannelResult, system: System) -> Iterator[Hit]:
     ch = result.channel
     conv = ch.conversion
-    converter = analysis.spec.system.converters.get(conv.converter) if conv.converter else None
+    converter = system.converters.get(conv.converter) if conv.converter else None
     if converter is None:
         return
     if "bits" in conv.stated and conv.bits is not None and conv.bits != converter.bits:

@@ -8,7 +8,7 @@ from collections.abc import Iterable, Iterator
 
 from ..analysis import ChannelResult, SystemAnalysis
 from ..analysis.budgets import ClockCheck
-from ..model import Channel, SourceRef
+from ..model import Channel, SourceRef, System
 from ..quantities import format_percent, format_quantity
 from . import Finding, Hit, channel_rule, system_rule
 
@@ -245,7 +245,7 @@ def group_skew(analysis: SystemAnalysis) -> Iterator[Finding]:
     FSR / 2^N. Correct the stated figure, or the settings it was derived from.""",
     kinds=("input", "output", "image"),
 )
-def stated_figure_mismatch(result: ChannelResult, analysis: SystemAnalysis) -> Iterator[Hit]:
+def stated_figure_mismatch(result: ChannelResult, system: System) -> Iterator[Hit]:
     stated, b = result.channel.stated, result.budget
     if b is None:
         return

@@ -4,8 +4,9 @@ from __future__ import annotations
 
 from collections.abc import Iterator
 
-from ..analysis import ChannelResult, SystemAnalysis
+from ..analysis import ChannelResult
 from ..analysis.image import SQUARE_TOLERANCE
+from ..model import System
 from ..quantities import format_percent, format_quantity
 from . import Hit, channel_rule
 
@@ -20,7 +21,7 @@ from . import Hit, channel_rule
     optical magnification of at least detail / f_N.""",
     kinds=("image",),
 )
-def spatial_nyquist(result: ChannelResult, analysis: SystemAnalysis) -> Iterator[Hit]:
+def spatial_nyquist(result: ChannelResult, system: System) -> Iterator[Hit]:
     im = result.image
     detail = result.channel.signal.detail_cycles_per_m
     if im is None or detail is None or detail <= im.spatial_nyquist_cycles_per_m * (1 + 1e-9):
@@ -46,7 +47,7 @@ def spatial_nyquist(result: ChannelResult, analysis: SystemAnalysis) -> Iterator
     stretched. Fix: correct `pixels` or `active_area`, or drop the assumption and scale each axis.""",
     kinds=("image",),
 )
-def non_square_pixels(result: ChannelResult, analysis: SystemAnalysis) -> Iterator[Hit]:
+def non_square_pixels(result: ChannelResult, system: System) -> Iterator[Hit]:
     im = result.image
     if im is None or not result.channel.signal.square_pixels or im.square_pixels:
         return

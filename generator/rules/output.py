@@ -6,10 +6,10 @@ import math
 from collections.abc import Callable, Iterator
 from dataclasses import replace
 
-from ..analysis import ChannelResult, SystemAnalysis
+from ..analysis import ChannelResult
 from ..analysis.output import filter_loss_db, image_rejection_at
 from ..dsp import reconstruction as rec
-from ..model import Channel
+from ..model import Channel, System
 from ..quantities import format_in_unit, format_quantity
 from . import Hit, channel_rule
 
@@ -51,7 +51,7 @@ def _hz(value: float) -> str:
     or raise the filter corner.""",
     kinds=("output",),
 )
-def zoh_droop(result: ChannelResult, analysis: SystemAnalysis) -> Iterator[Hit]:
+def zoh_droop(result: ChannelResult, system: System) -> Iterator[Hit]:
     o = result.output
     if o is None or o.passband_error_db <= o.flatness_db * (1 + 1e-9):
         return
@@ -86,7 +86,7 @@ def zoh_droop(result: ChannelResult, analysis: SystemAnalysis) -> Iterator[Hit]:
     ADI MT-001). Fix: raise the rate (the image moves up, both parts grow), or steepen the filter.""",
     kinds=("output",),
 )
-def image_rejection(result: ChannelResult, analysis: SystemAnalysis) -> Iterator[Hit]:
+def image_rejection(result: ChannelResult, system: System) -> Iterator[Hit]:
     o = result.output
     ch = result.channel
     if o is None or o.required_image_rejection_db is None:
@@ -131,7 +131,7 @@ def image_rejection(result: ChannelResult, analysis: SystemAnalysis) -> Iterator
     or narrow the converter's range.""",
     kinds=("output",),
 )
-def output_overrange(result: ChannelResult, analysis: SystemAnalysis) -> Iterator[Hit]:
+def output_overrange(result: ChannelResult, system: System) -> Iterator[Hit]:
     o = result.output
     ch = result.channel
     limit = ch.signal.limit

@@ -11,7 +11,8 @@ from __future__ import annotations
 
 from collections.abc import Iterator
 
-from ..analysis import ChannelResult, SystemAnalysis
+from ..analysis import ChannelResult
+from ..model import System
 from ..quantities import format_quantity
 from . import Hit, channel_rule
 
@@ -59,7 +60,7 @@ def _reasons(result: ChannelResult) -> tuple[list[str], str]:
     licensed practice govern.""",
     kinds=("input", "output", "image"),
 )
-def caution(result: ChannelResult, analysis: SystemAnalysis) -> Iterator[Hit]:
+def caution(result: ChannelResult, system: System) -> Iterator[Hit]:
     reasons, path = _reasons(result)
     if not reasons:
         return

@@ -4,10 +4,11 @@ from __future__ import annotations
 
 from collections.abc import Iterator
 
-from ..analysis import ChannelResult, SystemAnalysis
+from ..analysis import ChannelResult
 from ..analysis.sampling import DIGITAL, SamplingResult
 from ..dsp import filters as flt
 from ..dsp.filters import AnalogFilter, OrderDesign
+from ..model import System
 from ..quantities import format_quantity
 from . import Hit, channel_rule
 
@@ -21,7 +22,7 @@ from . import Hit, channel_rule
     separate it. Raise the rate, or narrow the band.""",
     kinds=("input", "output"),
 )
-def below_nyquist(result: ChannelResult, analysis: SystemAnalysis) -> Iterator[Hit]:
+def below_nyquist(result: ChannelResult, system: System) -> Iterator[Hit]:
     s = result.sampling
     if s is None or s.rate_hz >= 2 * s.band_high_hz:
         return
@@ -96,7 +97,7 @@ def _skip_alias_checks(s: SamplingResult | None) -> bool:
     covers content near fs, and the analog filter must give the same margin at f_mod - f_high,
     where content folds through the modulator itself; the weaker of the two is reported.""",
 )
-def alias_rejection(result: ChannelResult, analysis: SystemAnalysis) -> Iterator[Hit]:
+def alias_rejection(result: ChannelResult, system: System) -> Iterator[Hit]:
     s = result.sampling
     if s is None or _skip_alias_checks(s):
         return
@@ -169,7 +170,7 @@ def alias_rejection(result: ChannelResult, analysis: SystemAnalysis) -> Iterator
     delta-sigma converter the band must also sit inside the decimation filter's passband,
     f_high <= passband x fs.""",
 )
-def band_edge_droop(result: ChannelResult, analysis: SystemAnalysis) -> Iterator[Hit]:
+def band_edge_droop(result: ChannelResult, system: System) -> Iterator[Hit]:
     s = result.sampling
     if s is None or not s.has_input_figures:
         return
@@ -214,7 +215,7 @@ def band_edge_droop(result: ChannelResult, analysis: SystemAnalysis) -> Iterator
     input on such a converter needs a [filter] (family, order and corner; a family alone lets
     specfold size it). A delta-sigma converter's decimation filter does this job near fs.""",
 )
-def filter_missing(result: ChannelResult, analysis: SystemAnalysis) -> Iterator[Hit]:
+def filter_missing(result: ChannelResult, system: System) -> Iterator[Hit]:
     s = result.sampling
     ch = result.channel
     if s is None or not s.has_input_figures or s.delta_sigma or ch.filter is not None:
@@ -248,7 +249,7 @@ def filter_missing(result: ChannelResult, analysis: SystemAnalysis) -> Iterator[
     Taylor) and by search for bessel. When every family needs more than 20 poles the rate
     leaves the filter too little room.""",
 )
-def filter_impractical(result: ChannelResult, analysis: SystemAnalysis) -> Iterator[Hit]:
+def filter_impractical(result: ChannelResult, system: System) -> Iterator[Hit]:
     s = result.sampling
     if _skip_alias_checks(s) or s is None or not s.least_orders or s.best_least_order() is not None:
         return
@@ -277,7 +278,7 @@ def filter_impractical(result: ChannelResult, analysis: SystemAnalysis) -> Itera
     lands at level - attenuation dBFS; the finding is raised when it lands inside the band
     above the channel's floor (see alias-rejection).""",
 )
-def interference_folds(result: ChannelResult, analysis: SystemAnalysis) -> Iterator[Hit]:
+def interference_folds(result: ChannelResult, system: System) -> Iterator[Hit]:
     s = result.sampling
     if s is None or not s.has_input_figures or s.floor_dbfs is None:
         return
