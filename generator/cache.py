@@ -10,7 +10,9 @@ no-op build reports them without checking again) and the SHA-256 of every cache 
 - ``channels-NN.pickle``: :data:`RESULT_SHARDS` shards by a hash of the channel file's path, each
   channel as loaded and analysed with its figures as JSON text (the memo of
   :func:`generator.report.to_json`) and its channel-rule findings, keyed by tool, system.toml and
-  the file.
+  the file;
+- ``inputs.json``: each channel file's stat beside its key, so a rebuild reads only the files
+  whose stat changed (:func:`input_keys`, :func:`known_stats`).
 
 Unpickling runs code named in the file, so a cache file is unpickled only when its seal, an
 HMAC-SHA256 under a key kept outside the site (:func:`signing_key`, made once per user and
@@ -32,6 +34,7 @@ import json
 import os
 import pickle
 import secrets
+import time
 from collections.abc import Iterator, Mapping
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -57,6 +60,12 @@ RESULT_SHARDS = 64
 its file, in this many pickle files by a hash of the file's path: a rebuild neither parses nor
 analyses a file whose key (tool, system.toml, the file) is unchanged, and writes again only the
 shards whose entries changed."""
+INPUTS_CACHE = f"{CACHE}/inputs.json"
+"""Each channel file's size, times and inode beside its key, and when the build took them: a
+rebuild reads and hashes only the files whose stat changed (:func:`input_keys`)."""
+RACY_NS = 2_000_000_000
+"""A file changed less than this before the build that hashed it started is hashed again, stat or
+not: far beyond a file system's clock tick, and well short of the time between two saves."""
 LIBRARIES = ("numpy", "scipy", "jinja2", "markdown", "nh3", "plotly", "markupsafe")
 """Installed libraries whose versions are part of the tool key."""
 
@@ -125,6 +134,10 @@ def tool_key(templates: Path, bundle: Path) -> str:
     return digest(*parts)
 
 
+Stat = tuple[int, int, int, int]
+"""A file's size, modification and change times (ns) and inode: what tells it is untouched."""
+
+
 @dataclass(frozen=True)
 class Inputs:
     """Keys of the spec tree: the whole of it, system.toml, and each channel file by its path."""
@@ -132,16 +145,85 @@ class Inputs:
     tree: str
     system: str
     files: dict[str, str]
+    stats: dict[str, Stat] = field(default_factory=dict)
+    """each channel file's :data:`Stat`, taken before it was read"""
+    taken_at: int = 0
+    """wall clock (ns) before the first file was looked at"""
 
 
-def input_keys(specs: Path) -> Inputs | None:
-    """Hash every file the build reads; None when one cannot be read (no shortcut is taken then)."""
+def _stat(path: Path) -> Stat:
+    st = os.lstat(path)
+    return (st.st_size, st.st_mtime_ns, st.st_ctime_ns, st.st_ino)
+
+
+def input_keys(specs: Path, known: Mapping[str, tuple[Stat, str]] | None = None) -> Inputs | None:
+    """Hash every file the build reads; None when one cannot be read (no shortcut is taken then).
+
+    ``known`` (:func:`known_stats`) holds channel files' keys by the stat a previous build took
+    before reading them: a file whose stat is still that one is not read again.  The change time
+    moves on every write and cannot be set back by its owner, so an equal stat means an unchanged
+    file, except for a write within the file system's clock tick of the previous read, which
+    :func:`known_stats` rules out (common practice: the stat cache of version-control tools).
+    """
+    taken_at = time.time_ns()
+    held = known or {}
+    files: dict[str, str] = {}
+    stats: dict[str, Stat] = {}
     try:
-        system = digest((specs / SYSTEM_FILE).read_bytes())
-        files = {p.relative_to(specs).as_posix(): digest(read_whole(str(p))) for p in channel_files(specs)}
+        system = digest(read_whole(specs / SYSTEM_FILE))
+        for p in channel_files(specs):
+            rel = p.relative_to(specs).as_posix()
+            stats[rel] = mark = _stat(p)
+            old = held.get(rel)
+            files[rel] = old[1] if old is not None and old[0] == mark else digest(read_whole(str(p)))
     except OSError:
         return None
-    return Inputs(digest(system, *(f"{k} {v}" for k, v in files.items())), system, files)
+    return Inputs(digest(system, *(f"{k} {v}" for k, v in files.items())), system, files, stats, taken_at)
+
+
+def read_sealed(path: Path, sealed: object, key: bytes | None) -> bytes | None:
+    """A cache file's bytes when its seal under this user's ``key`` is ``sealed`` (the manifest's);
+    None when there is no key, or the file is missing, unreadable or not sealed by this key."""
+    if key is None or not isinstance(sealed, str) or not regular_file(path):
+        return None
+    try:
+        data = read_whole(path)
+    except OSError:
+        return None
+    return data if hmac.compare_digest(seal(data, key), sealed) else None
+
+
+def known_stats(old_site: Path, previous: Mapping[str, Any] | None, key: bytes | None) -> dict[str, tuple[Stat, str]]:
+    """The channel files' stats and keys the current site's build took (its sealed
+    :data:`INPUTS_CACHE`), without those whose change time falls within :data:`RACY_NS` of that
+    build's start: a write so close to the read may have left the stat as it was."""
+    listed = previous.get("cache") if previous is not None else None
+    data = read_sealed(old_site / INPUTS_CACHE, listed.get("inputs"), key) if isinstance(listed, dict) else None
+    if data is None:
+        return {}
+    try:
+        table = json.loads(data)
+        trusted_before = int(table["taken_at"]) - RACY_NS
+        out: dict[str, tuple[Stat, str]] = {}
+        for rel, (size, mtime, ctime, ino, file_key) in table["files"].items():
+            if isinstance(ctime, int) and ctime < trusted_before and isinstance(file_key, str):
+                out[rel] = ((int(size), int(mtime), ctime, int(ino)), file_key)
+        return out
+    except (ValueError, TypeError, KeyError, AttributeError):
+        return {}
+
+
+def write_inputs(tmp: Path, reuse: Reuse) -> str | None:
+    """Write the inputs' stats and keys (:data:`INPUTS_CACHE`) into ``tmp``; returns the seal, or
+    None (nothing written) without input keys or a signing key."""
+    inputs = reuse.inputs
+    if reuse.key is None or inputs is None:
+        return None
+    table = {"taken_at": inputs.taken_at,
+             "files": {rel: [*inputs.stats[rel], key] for rel, key in inputs.files.items() if rel in inputs.stats}}
+    data = (json.dumps(table, sort_keys=True, separators=(",", ":")) + "\n").encode("utf-8")
+    write(tmp, INPUTS_CACHE, data)
+    return seal(data, reuse.key)
 
 
 def read_manifest(output: Path) -> dict[str, Any] | None:
@@ -247,13 +329,10 @@ class Reuse:
     def _unpickle(self, rel: str, sealed: object) -> Any:
         """A cache file of the current site, unpickled only when its seal under this user's key is
         the manifest's; None when it is missing, damaged, or not sealed by this key."""
-        path = self.old_site / rel
-        if self.previous is None or self.key is None or not isinstance(sealed, str) or not regular_file(path):
-            return None
+        data = read_sealed(self.old_site / rel, sealed, self.key) if self.previous is not None else None
+        if data is None:
+            return None  # not a file this user's builds wrote: never unpickled
         try:
-            data = path.read_bytes()
-            if not hmac.compare_digest(seal(data, self.key), sealed):
-                return None  # not a file this user's builds wrote: never unpickled
             return pickle.loads(data)  # sealed by this user's key, checked above
         except Exception:  # a damaged cache only means parsing again
             return None

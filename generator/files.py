@@ -28,7 +28,14 @@ def write(root: Path, rel: str, data: str | bytes) -> None:
     target = (root / rel).resolve()
     if not inside(target, root) or target == root:
         raise SpecError(f"refusing to write {rel!r}: it would land outside the site folder")
-    target.parent.mkdir(parents=True, exist_ok=True)
+    # folders are made below ``root`` only: a writer whose build folder was removed (a killed build
+    # cleared by the next one) fails instead of making it again
+    base, folder, missing = root.resolve(), target.parent, []
+    while folder != base and not folder.is_dir():
+        missing.append(folder)
+        folder = folder.parent
+    for made in reversed(missing):
+        made.mkdir(exist_ok=True)
     if isinstance(data, str):
         target.write_text(data, encoding="utf-8", newline="\n")
     else:

@@ -47,14 +47,18 @@ per CPU renders channel pages in coarse chunks.
 
 from __future__ import annotations
 
+import ctypes
 import gc
 import importlib.resources
 import multiprocessing
+import multiprocessing.pool
 import os
 import shutil
+import signal
+import sys
 import tempfile
 from collections.abc import Callable, Iterator, Mapping
-from contextlib import ExitStack, contextmanager
+from contextlib import ExitStack, contextmanager, suppress
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
@@ -68,12 +72,14 @@ from .cache import (
     Cached,
     Reuse,
     input_keys,
+    known_stats,
     manifest_findings,
     manifest_text,
     read_manifest,
     signing_key,
     tool_key,
     unchanged,
+    write_inputs,
     write_shards,
     write_shared,
 )
@@ -360,6 +366,25 @@ def _side() -> dict[str, str] | None:
     return _data_and_shards(_JOB)
 
 
+PR_SET_PDEATHSIG = 1
+"""prctl(2) option: the signal a Linux process gets when the thread that forked it ends."""
+
+
+def _die_with_parent(parent: int) -> None:
+    """Pool initializer: the worker is killed with the build (Linux), so a build killed outright
+    leaves no worker writing into a folder the next build is clearing."""
+    if sys.platform.startswith("linux"):
+        with suppress(OSError, AttributeError):
+            ctypes.CDLL(None).prctl(PR_SET_PDEATHSIG, signal.SIGKILL)
+    if os.getppid() != parent:  # the build ended before the line above took effect
+        os._exit(0)
+
+
+def _pool(workers: int) -> multiprocessing.pool.Pool:
+    """A pool of forked workers that end with this process."""
+    return multiprocessing.get_context("fork").Pool(workers, initializer=_die_with_parent, initargs=(os.getpid(),))
+
+
 def _forking(channels: int) -> bool:
     """Whether a build of this many channels shares its work with forked workers."""
     return channels >= POOL_MIN_PAGES and "fork" in multiprocessing.get_all_start_methods()
@@ -410,13 +435,13 @@ def _fill(tmp: Path, analysis: SystemAnalysis, findings: list[Finding], env: jin
             # a side worker writes spec.json and the cache shards meanwhile
             _JOB = job
             stack.callback(_clear_job)
-            side = stack.enter_context(multiprocessing.get_context("fork").Pool(1)).apply_async(_side)
+            side = stack.enter_context(_pool(1)).apply_async(_side)
         keys, todo = _carry_pages(job, tick)
         workers = _pool_size(len(todo)) if side is not None else 0
         pending = None
         if workers:
             chunks = [todo[k:k + POOL_CHUNK] for k in range(0, len(todo), POOL_CHUNK)]
-            pool = stack.enter_context(multiprocessing.get_context("fork").Pool(workers))
+            pool = stack.enter_context(_pool(workers))
             pending = pool.map_async(_render_chunk, chunks, chunksize=1)
         for rel in SHARED_PAGES:
             write(tmp, rel, shared_page(rel, ctx, env, sections))
@@ -429,8 +454,9 @@ def _fill(tmp: Path, analysis: SystemAnalysis, findings: list[Finding], env: jin
                 memo.remember(designs)
                 tick(n, "channels/")
         shards = _data_and_shards(job) if side is None else side.get()
-    shared = write_shared(tmp, reuse, analysis) if reuse is not None and shards is not None else None
-    listing = None if shared is None else {"shared": shared, "shards": shards}
+    listing = None
+    if reuse is not None and shards is not None and (shared := write_shared(tmp, reuse, analysis)) is not None:
+        listing = {"shared": shared, "shards": shards, "inputs": write_inputs(tmp, reuse)}
     write(tmp, MARKER, MARKER_TEXT)
     return done, keys, listing
 
@@ -583,14 +609,15 @@ def build(specs: Path | str, output: Path | str, progress: Progress | None = Non
     """
     specs_path, out_path = Path(specs), Path(output)
     check_output(out_path, specs_path)  # refuse early, before any work
-    tool, inputs = tool_key(TEMPLATES, plotly_bundle()), input_keys(specs_path)
+    _clean_leftovers(out_path.resolve())  # first: a site a killed build had moved aside comes back, and is reused
+    tool, key = tool_key(TEMPLATES, plotly_bundle()), signing_key()
     previous = read_manifest(out_path) if incremental and regular_file(out_path / MARKER) else None
     if previous is not None and not _intact(out_path, previous):
         previous = None  # a site with links in it, or pages missing, is neither trusted nor reused
+    inputs = input_keys(specs_path, known_stats(out_path, previous, key))
     if previous is not None and unchanged(previous, tool, inputs):
-        _clean_leftovers(out_path.resolve())  # a no-op build still tidies up after killed ones
         return BuildSummary(out_path, int(previous["count"]), int(previous["channels"]), manifest_findings(previous))
-    reuse = Reuse(tool, inputs, previous, out_path.resolve(), signing_key())
+    reuse = Reuse(tool, inputs, previous, out_path.resolve(), key)
     with _collector_paused() as settled:
         cached = reuse.load_cache()
         memo.remember(cached.designs)

@@ -15,6 +15,7 @@ import pickle
 import shutil
 import subprocess
 import sys
+import time
 from pathlib import Path
 from typing import Any
 
@@ -227,6 +228,70 @@ def test_channel_rules_run_again_only_on_the_edited_channel(tmp_path: Path, monk
     assert sorted(checked) == sorted(p.stem for p in (specs / "channels").rglob("*.md"))
     assert summary.findings == run_rules(analyze(load_spec(specs)))
     assert _pages(out) == _fresh(specs, tmp_path / "fresh")
+
+
+def _counting_reads(monkeypatch: pytest.MonkeyPatch) -> list[str]:
+    """Channel files read by ``cache.input_keys`` from now on, by name."""
+    read: list[str] = []
+    real = cache.read_whole
+
+    def counting(path: str | Path) -> bytes:
+        if str(path).endswith(".md"):
+            read.append(Path(path).name)
+        return real(path)
+
+    monkeypatch.setattr(cache, "read_whole", counting)
+    return read
+
+
+def test_a_rebuild_reads_only_the_files_whose_stat_changed(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    # The stat shortcut: size, mtime, ctime and inode as the previous build saw them mean the key it
+    # hashed still holds.  RACY_NS = 0 because the copied files are younger than the 2 s margin.
+    monkeypatch.setattr(cache, "RACY_NS", 0)
+    specs = tmp_path / "specs"
+    shutil.copytree(DEMO, specs)
+    out = tmp_path / "site"
+    site.build(specs, out)
+    read = _counting_reads(monkeypatch)
+    edited = specs / "channels" / "HYD-01.md"
+    edited.write_text(edited.read_text(encoding="utf-8") + "\nAccumulator pre-charge checked.\n", encoding="utf-8")
+    site.build(specs, out)
+    assert read == ["HYD-01.md"]
+    # same size, modification time set back: the change time still moves, so the edit is seen
+    before = edited.stat()
+    text = edited.read_text(encoding="utf-8")
+    edited.write_text(text.replace("pre-charge checked", "pre-charge CHECKED"), encoding="utf-8")
+    os.utime(edited, ns=(before.st_atime_ns, before.st_mtime_ns))
+    assert edited.stat().st_size == before.st_size and edited.stat().st_mtime_ns == before.st_mtime_ns
+    read.clear()
+    site.build(specs, out)
+    assert read == ["HYD-01.md"]
+    assert "pre-charge CHECKED" in (out / "channels" / "HYD-01.html").read_text(encoding="utf-8")
+    assert _pages(out) == _fresh(specs, tmp_path / "fresh")
+
+
+def test_a_file_changed_close_to_the_last_build_is_read_again(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    # A write within the file system's clock tick of the previous read can leave every stat field as
+    # it was.  Simulated with a stat that never changes: a change time just before the build means
+    # the file is read again; one long before it means the recorded key is trusted (so the check
+    # above is what finds the edit).
+    specs = tmp_path / "specs"
+    shutil.copytree(DEMO, specs)
+    out = tmp_path / "site"
+    edited = specs / "channels" / "HYD-01.md"
+    frozen = {"ctime": time.time_ns()}
+    monkeypatch.setattr(cache, "_stat", lambda path: (0, 0, frozen["ctime"], 0))
+    site.build(specs, out)
+    edited.write_text(edited.read_text(encoding="utf-8") + "\nFirst edit.\n", encoding="utf-8")
+    site.build(specs, out)
+    assert "First edit." in (out / "channels" / "HYD-01.html").read_text(encoding="utf-8")
+    frozen["ctime"] = 0  # long ago: trusted from now on, once a build (not a no-op) has recorded it
+    other = specs / "channels" / "TQ-SHAFT.md"
+    other.write_text(other.read_text(encoding="utf-8") + "\nRe-zeroed.\n", encoding="utf-8")
+    site.build(specs, out)
+    edited.write_text(edited.read_text(encoding="utf-8") + "\nSecond edit.\n", encoding="utf-8")
+    site.build(specs, out)
+    assert "Second edit." not in (out / "channels" / "HYD-01.html").read_text(encoding="utf-8")
 
 
 def test_worker_processes_write_the_same_site(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:

@@ -249,11 +249,63 @@ def test_a_build_killed_at_any_moment_leaves_the_previous_site(tmp_path: Path) -
     assert leftovers(out) == []  # the next build cleared what the killed ones left
 
 
+def test_a_writer_never_makes_a_removed_build_folder_again(tmp_path: Path) -> None:
+    # A worker of a killed build may still be writing when the next build clears its folder: the
+    # write must fail rather than make the folder again (it would be left with no marker, for good).
+    root = tmp_path / ".site.building-x"
+    root.mkdir()
+    write_inside(root, "channels/A.html", "page")  # folders below the root are made as needed
+    assert (root / "channels" / "A.html").read_text(encoding="utf-8") == "page"
+    shutil.rmtree(root)
+    with pytest.raises(FileNotFoundError):
+        write_inside(root, "book/b.html", "late")
+    with pytest.raises(FileNotFoundError):
+        write_inside(root, "index.html", "late")
+    assert not root.exists()
+
+
+def test_pool_workers_end_with_a_killed_build(tmp_path: Path) -> None:
+    # A build's forked workers are killed with it (PR_SET_PDEATHSIG on Linux), so SIGKILL on the
+    # build leaves no worker writing on.  Reference: the kernel's process table (os.kill(pid, 0)).
+    if not sys.platform.startswith("linux"):
+        pytest.skip("parent-death signal is Linux only")
+    # the worker is busy (a 30 s task) when its build is killed, as a page worker mid-chunk would be;
+    # an idle worker would end anyway, on the end of its task pipe
+    code = ("import os, time; from generator import site; p = site._pool(1); pid = p.apply(os.getpid); "
+            "p.apply_async(time.sleep, (30,)); time.sleep(0.2); print(pid, flush=True); time.sleep(60)")
+    child = subprocess.Popen([sys.executable, "-c", code], cwd=ROOT, stdout=subprocess.PIPE, text=True)
+    worker = 0
+    try:
+        assert child.stdout is not None
+        worker = int(child.stdout.readline())
+        os.kill(worker, 0)  # alive while the build runs
+        child.send_signal(signal.SIGKILL)
+        child.wait()
+        deadline = time.monotonic() + 5
+        while _running(worker) and time.monotonic() < deadline:
+            time.sleep(0.02)
+        assert not _running(worker), "a worker outlived its killed build"
+    finally:
+        if child.poll() is None:
+            child.kill()
+        if worker and _running(worker):
+            os.kill(worker, signal.SIGKILL)  # a failed run leaves nothing behind
+
+
+def _running(pid: int) -> bool:
+    """Whether ``pid`` is a live process (a zombie, dead but not yet reaped by init, is not)."""
+    try:
+        state = Path(f"/proc/{pid}/stat").read_text().rsplit(")", 1)[1].split()[0]
+    except (OSError, IndexError):
+        return False
+    return state != "Z"
+
+
 def _sealed(out: Path) -> bool:
     """Whether every cache file the site's manifest lists is there and carries its seal."""
     key = cache.signing_key()
     listed = json.loads((out / cache.MANIFEST).read_text(encoding="utf-8"))["cache"]
-    files = {cache.SHARED_CACHE: listed["shared"], **listed["shards"]}
+    files = {cache.SHARED_CACHE: listed["shared"], cache.INPUTS_CACHE: listed["inputs"], **listed["shards"]}
     return key is not None and len(files) > 1 and all(
         (out / rel).is_file() and cache.seal((out / rel).read_bytes(), key) == seal for rel, seal in files.items())
 
