@@ -54,7 +54,7 @@ def read_whole(path: str | Path) -> bytes:
         os.close(fd)
 
 
-def carry(source: Path, target: Path) -> bool:
+def carry(source: str | Path, target: str | Path) -> bool:
     """Hard-link (or else copy) a regular file of the current site into the new one; False when
     ``source`` is not a regular file (a link is never carried) or neither works."""
     try:
@@ -69,7 +69,7 @@ def carry(source: Path, target: Path) -> bool:
         except FileNotFoundError:
             if attempt == 2:
                 break
-            target.parent.mkdir(parents=True, exist_ok=True)  # the first file into its folder
+            Path(target).parent.mkdir(parents=True, exist_ok=True)  # the first file into its folder
         except OSError:  # another file system, or no hard links there
             break
     try:
