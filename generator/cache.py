@@ -64,8 +64,9 @@ INPUTS_CACHE = f"{CACHE}/inputs.json"
 """Each channel file's size, times and inode beside its key, and when the build took them: a
 rebuild reads and hashes only the files whose stat changed (:func:`input_keys`)."""
 RACY_NS = 2_000_000_000
-"""A file changed less than this before the build that hashed it started is hashed again, stat or
-not: far beyond a file system's clock tick, and well short of the time between two saves."""
+"""A file whose change time is later than this before the start of the build that hashed it is
+hashed again, stat or not: more than a file system's clock tick (2 s on FAT), and short enough
+that only a file saved just before a build is read twice."""
 LIBRARIES = ("numpy", "scipy", "jinja2", "markdown", "nh3", "plotly", "markupsafe")
 """Installed libraries whose versions are part of the tool key."""
 

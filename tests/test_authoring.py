@@ -5,6 +5,7 @@ from __future__ import annotations
 import csv
 import io
 import json
+import os
 import re
 import shutil
 import signal
@@ -343,6 +344,25 @@ def test_serve_rebuilds_shows_errors_and_stops(tmp_path: Path) -> None:
     assert not any(t.is_alive() for t in preview._threads)
     with pytest.raises(OSError):
         _get(f"http://127.0.0.1:{port}/")
+
+
+def test_snapshot_lists_every_file_with_its_time_and_size(tmp_path: Path) -> None:
+    # Reference: os.walk and os.stat from the standard library.
+    specs = tmp_path / "specs"
+    shutil.copytree(DATA / "minimal", specs)
+    (specs / "channels" / "deep" / "er").mkdir(parents=True)
+    (specs / "channels" / "deep" / "er" / "X-1.md").write_text("x", encoding="utf-8")
+    (specs / "notes.txt").write_text("twelve bytes", encoding="utf-8")
+    expected = []
+    for folder, _dirs, names in os.walk(specs):
+        for name in names:
+            path = Path(folder) / name
+            st = os.stat(path)
+            expected.append((path.relative_to(specs).as_posix(), st.st_mtime_ns, st.st_size))
+    got = serve.snapshot(specs)
+    assert got == tuple(sorted(expected))
+    assert ("notes.txt", (specs / "notes.txt").stat().st_mtime_ns, 12) in got
+    assert any(name == "channels/deep/er/X-1.md" for name, _, _ in got)
 
 
 def test_watch_waits_for_a_save_to_settle(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
