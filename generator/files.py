@@ -1,8 +1,9 @@
-"""File primitives for the site folder: no policy, no pages.
+"""File primitives: no policy, no pages.
 
 ``write`` never lands outside the folder it is given; ``carry`` hard-links a regular file (never a
-symbolic link) and falls back to a copy; ``read_whole`` reads a file without buffered-IO objects.
-The policy (which folders may be replaced, the swap, leftovers of killed builds) is in site.py.
+symbolic link) and falls back to a copy; ``read_whole`` reads a file without buffered-IO objects;
+``walk`` lists a tree with one ``scandir`` per folder, never following a link.  The policy (which
+folders may be replaced, the swap, leftovers of killed builds) is in site.py.
 """
 
 from __future__ import annotations
@@ -10,6 +11,7 @@ from __future__ import annotations
 import os
 import shutil
 import stat
+from collections.abc import Iterator
 from pathlib import Path
 
 from .errors import SpecError
@@ -40,6 +42,30 @@ def write(root: Path, rel: str, data: str | bytes) -> None:
         target.write_text(data, encoding="utf-8", newline="\n")
     else:
         target.write_bytes(data)
+
+
+def walk(root: str | Path, strict: bool = False) -> Iterator[tuple[tuple[str, ...], os.DirEntry[str]]]:
+    """Every entry below ``root`` except the real folders, with its path below ``root`` as parts,
+    in no set order.  One ``scandir`` per folder, whose entries already know their type (no
+    ``stat`` per file); real folders are descended into, and a symbolic link, to a file or a
+    folder, is yielded and never followed.  A folder that cannot be read is skipped, or with
+    ``strict`` raises its OSError."""
+    stack: list[tuple[str, tuple[str, ...]]] = [(os.fspath(root), ())]
+    while stack:
+        folder, parts = stack.pop()
+        try:
+            with os.scandir(folder) as listing:
+                entries = list(listing)
+        except OSError:
+            if strict:
+                raise
+            continue
+        for entry in entries:
+            here = (*parts, entry.name)
+            if entry.is_dir(follow_symlinks=False):
+                stack.append((entry.path, here))
+            else:
+                yield here, entry
 
 
 def read_whole(path: str | Path) -> bytes:

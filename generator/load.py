@@ -10,7 +10,6 @@ from __future__ import annotations
 
 import difflib
 import math
-import os
 import re
 import tomllib
 from collections.abc import Callable, Iterator, Mapping
@@ -22,6 +21,7 @@ from typing import Any
 
 from . import schema
 from .errors import SpecError, SpecErrors
+from .files import walk
 from .model import (
     Channel,
     Clock,
@@ -750,25 +750,13 @@ def _resolve_conversion(src: _Source, raw: dict[str, Any], kind: str, system: Sy
 def channel_files(root: Path) -> list[Path]:
     """Every channel file under ``root/channels``, in a stable order.
 
-    Regular files named ``*.md`` only: symbolic links (to files or folders) are never followed.
-    One ``scandir`` per folder, whose entries already know their type: a tree of 10,000 files
-    is listed without a ``stat`` per file.
+    Regular files named ``*.md`` only: symbolic links (to files or folders) are never followed
+    (:func:`generator.files.walk`: a tree of 10,000 files is listed without a ``stat`` per file).
     """
-    found: list[tuple[tuple[str, ...], Path]] = []
-    stack: list[tuple[Path, tuple[str, ...]]] = [(root / CHANNEL_DIR, ())]
-    while stack:
-        folder, parts = stack.pop()
-        try:
-            with os.scandir(folder) as entries:
-                for entry in entries:
-                    if entry.is_dir(follow_symlinks=False):
-                        stack.append((folder / entry.name, (*parts, entry.name)))
-                    elif entry.name.endswith(".md") and entry.is_file(follow_symlinks=False):
-                        found.append(((*parts, entry.name), folder / entry.name))
-        except OSError:
-            continue  # no channels folder (or an unreadable one): nothing in it is listed
+    found = [(parts, entry.path) for parts, entry in walk(root / CHANNEL_DIR)
+             if entry.name.endswith(".md") and entry.is_file(follow_symlinks=False)]
     found.sort(key=lambda item: item[0])  # the order of sorted() on the paths, without Path comparisons
-    return [path for _, path in found]
+    return [Path(path) for _, path in found]
 
 
 def load_system(root: Path | str) -> System:

@@ -85,7 +85,7 @@ from .cache import (
 )
 from .dsp import memo
 from .errors import SpecError
-from .files import carry, inside, regular_file, write
+from .files import carry, inside, regular_file, walk, write
 from .load import load_spec
 from .propose import flagged_channels, propose
 from .report import to_json
@@ -553,21 +553,13 @@ def _intact(out: Path, previous: dict[str, Any]) -> bool:
     if not isinstance(pages, dict):
         return False
     present: set[str] = set()
-    stack = [(out, "")]
-    while stack:
-        folder, prefix = stack.pop()
-        try:
-            entries = list(os.scandir(folder))
-        except OSError:
-            return False
-        for entry in entries:
+    try:
+        for parts, entry in walk(out, strict=True):
             if entry.is_symlink():
                 return False
-            rel = prefix + entry.name
-            if entry.is_dir(follow_symlinks=False):
-                stack.append((Path(entry.path), rel + "/"))
-            else:
-                present.add(rel)
+            present.add("/".join(parts))
+    except OSError:
+        return False
     return all(rel in present for rel in pages)
 
 
