@@ -257,7 +257,7 @@ class Cached:
     figures: dict[str, str] = field(default_factory=dict)
     """channel id -> its figures as JSON text (the memo of :func:`report.to_json`)"""
     findings: dict[str, tuple[Finding, ...]] = field(default_factory=dict)
-    """channel id -> its channel-rule findings before waivers (:func:`rules.channel_findings`)"""
+    """channel id -> its channel-rule findings before waivers (:func:`rules.channel_rule_findings`)"""
     system: System | None = None
     designs: object = None
     shards: dict[str, tuple[str, list[tuple[str, str]]]] = field(default_factory=dict)

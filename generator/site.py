@@ -89,7 +89,7 @@ from .files import carry, inside, regular_file, walk, write
 from .load import load_spec
 from .propose import flagged_channels, propose
 from .report import to_json
-from .rules import Finding, all_rules, channel_findings, run_rules
+from .rules import Finding, all_rules, channel_rule_table, run_rules
 
 MARKER = ".specfold-site"
 MARKER_TEXT = "This folder is a site built by specfold; the next build replaces all of it.\n"
@@ -404,7 +404,7 @@ def _fill(tmp: Path, analysis: SystemAnalysis, findings: list[Finding], env: jin
     listing of the cache written (None without a reuse).
 
     ``figures`` is the memo of :func:`report.to_json` (channel id -> figures as JSON text);
-    ``per_channel`` the channel-rule findings the cache keeps (:func:`rules.channel_findings`)."""
+    ``per_channel`` the channel-rule findings the cache keeps (:func:`rules.channel_rule_table`)."""
     global _JOB
     assets = tmp / "assets"
     assets.mkdir()
@@ -616,9 +616,7 @@ def build(specs: Path | str, output: Path | str, progress: Progress | None = Non
         spec = load_spec(specs_path, known={rel: r.channel for rel, r in cached.results.items()},
                          known_system=cached.system)
         analysis = analyze(spec, known={r.channel.id: r for r in cached.results.values()})
-        kept, system = cached.findings_for(analysis), analysis.spec.system
-        per_channel = {r.channel.id: kept[r.channel.id] if r.channel.id in kept else channel_findings(r, system)
-                       for r in analysis.channels}
+        per_channel = channel_rule_table(analysis, cached.findings_for(analysis))
         findings = run_rules(analysis, per_channel=per_channel)
         settled()
         count = write_site(analysis, findings, out_path, specs_path, progress, reuse, cached, per_channel)

@@ -21,7 +21,7 @@ from typing import Any
 
 import pytest
 
-from generator import cache, load, render, site
+from generator import cache, load, render, rules, site
 from generator.analysis import analyze
 from generator.load import load_spec
 from generator.rules import run_rules
@@ -204,13 +204,13 @@ def test_channel_rules_run_again_only_on_the_edited_channel(tmp_path: Path, monk
     out = tmp_path / "site"
     site.build(specs, out)
     checked: list[str] = []
-    real = site.channel_findings
+    real = rules.channel_rule_findings
 
     def counting(result: Any, system: Any) -> Any:
         checked.append(result.channel.id)
         return real(result, system)
 
-    monkeypatch.setattr(site, "channel_findings", counting)
+    monkeypatch.setattr(rules, "channel_rule_findings", counting)
     edited = specs / "channels" / "TACHO-HSS.md"  # a channel with a channel-rule finding of its own
     edited.write_text(edited.read_text(encoding="utf-8") + "\nMount torque checked.\n", encoding="utf-8")
     summary = site.build(specs, out)

@@ -182,36 +182,47 @@ def apply_waivers(findings: Iterable[Finding], analysis: SystemAnalysis) -> list
     return match_waivers(findings, analysis)[0]
 
 
-def channel_findings(result: ChannelResult, system: System) -> tuple[Finding, ...]:
+def channel_rule_findings(result: ChannelResult, system: System) -> tuple[Finding, ...]:
     """Every channel rule's findings on one channel, before waivers, in registration order."""
     _load_rule_modules()
     return tuple(f for rule in CHANNEL_RULES.values() for f in rule.findings(result, system))
+
+
+def channel_rule_table(analysis: SystemAnalysis,
+                       kept: Mapping[str, tuple[Finding, ...]] | None = None) -> dict[str, tuple[Finding, ...]]:
+    """:func:`channel_rule_findings` of every channel, by id in channel order; a channel in ``kept``
+    (findings computed earlier for the same result and system.toml) takes those as they are."""
+    system, known = analysis.spec.system, kept or {}
+    return {r.channel.id: known[r.channel.id] if r.channel.id in known else channel_rule_findings(r, system)
+            for r in analysis.channels}
 
 
 def run_rules(analysis: SystemAnalysis, only: Iterable[str] | None = None,
               per_channel: Mapping[str, tuple[Finding, ...]] | None = None) -> list[Finding]:
     """Run every registered rule (or only the named ones); findings sorted by place.
 
-    ``per_channel`` gives channels' channel-rule findings already known (:func:`channel_findings`,
-    kept by the build cache), by channel id; the others are computed.  It is used only when every
-    rule runs.  ``stale-waiver`` runs last, on the other rules' findings, and only when every rule
-    ran (with a subset, waivers of the rules left out would look stale).
+    With every rule, the channel rules' findings come from :func:`channel_rule_table`, taking
+    those in ``per_channel`` (by channel id) as they are.  ``stale-waiver`` runs last, on the other
+    rules' findings, and only when every rule ran (with a subset, waivers of the rules left out
+    would look stale).
     """
     _load_rule_modules()
     from .budgets import stale_waivers
 
-    wanted = set(only) if only is not None else None
     findings: list[Finding] = []
-    for rule in RULES.values():
-        if (wanted is None and rule.id not in CHANNEL_RULES) or (wanted is not None and rule.id in wanted):
-            findings.extend(rule.check(analysis))
-    if wanted is None:
-        system, known = analysis.spec.system, per_channel or {}
-        for result in analysis.channels:
-            kept = known.get(result.channel.id)
-            findings.extend(kept if kept is not None else channel_findings(result, system))
+    if only is None:
+        for rule in RULES.values():
+            if rule.id not in CHANNEL_RULES:  # those run channel by channel, below
+                findings.extend(rule.check(analysis))
+        for kept in channel_rule_table(analysis, per_channel).values():
+            findings.extend(kept)
+    else:
+        wanted = set(only)
+        for rule in RULES.values():
+            if rule.id in wanted:
+                findings.extend(rule.check(analysis))
     marked, used = match_waivers(findings, analysis)
-    if wanted is None:
+    if only is None:
         marked.extend(stale_waivers(analysis, used, set(RULES)))
     return sorted(marked, key=Finding.sort_key)
 
