@@ -3,7 +3,7 @@
 A site carries ``.specfold-cache/``.  ``manifest.json`` holds a key for the tool (version,
 generator source, templates, the plotly bundle, library versions), a key for the inputs
 (system.toml and every channel file), a key per channel page and book section, the findings (a
-no-op build reports them without checking again) and the SHA-256 of every cache file:
+no-op build reports them without checking again) and the seal of every cache file:
 
 - ``shared.pickle``: system.toml as loaded, and the numerical memos of :mod:`generator.dsp.memo`
   (filter prototypes, least orders...), so a rebuild meeting only known filters imports no scipy;
@@ -146,9 +146,9 @@ class Inputs:
     tree: str
     system: str
     files: dict[str, str]
-    stats: dict[str, Stat] = field(default_factory=dict)
+    stats: dict[str, Stat]
     """each channel file's :data:`Stat`, taken before it was read"""
-    taken_at: int = 0
+    taken_at: int
     """wall clock (ns) before the first file was looked at"""
 
 
@@ -221,7 +221,7 @@ def write_inputs(tmp: Path, reuse: Reuse) -> str | None:
     if reuse.key is None or inputs is None:
         return None
     table = {"taken_at": inputs.taken_at,
-             "files": {rel: [*inputs.stats[rel], key] for rel, key in inputs.files.items() if rel in inputs.stats}}
+             "files": {rel: [*inputs.stats[rel], key] for rel, key in inputs.files.items()}}
     data = (json.dumps(table, sort_keys=True, separators=(",", ":")) + "\n").encode("utf-8")
     write(tmp, INPUTS_CACHE, data)
     return seal(data, reuse.key)
@@ -296,15 +296,16 @@ class Reuse:
     _result_keys: dict[str, str] = field(default_factory=dict, repr=False)
 
     def page_key(self, result: ChannelResult, ctx: render.Context, rel: str) -> str | None:
-        if self.inputs is None:
-            return None
+        """A channel page's key: its channel's :meth:`result_key` (tool, system.toml, the file), the
+        page path, and what other channels bear on the page (status, budget, findings and the pages
+        they link to, proposal)."""
         ch = result.channel
-        file_key = self.inputs.files.get(ch.source.file)
-        if file_key is None:
+        source = self.result_key(ch.source.file)
+        if source is None:
             return None
         linked = [(repr(f), [ctx.paths.get(c, "") for c in f.channels]) for f in ctx.by_channel.get(ch.id, ())]
-        return digest(self.tool, self.inputs.system, ch.source.file, file_key, rel, ctx.status[ch.id],
-                       repr(result.budget), repr(linked), repr(ctx.proposals.get(ch.id)))
+        return digest(source, rel, ctx.status[ch.id], repr(result.budget), repr(linked),
+                      repr(ctx.proposals.get(ch.id)))
 
     def section_key(self, section: render.BookSection, channel_keys: list[str | None]) -> str | None:
         """A book section's key: its path, its label and the keys of its channels' pages (which
@@ -440,7 +441,7 @@ def write_shared(tmp: Path, reuse: Reuse, analysis: SystemAnalysis) -> str | Non
 
 def manifest_text(reuse: Reuse, keys: dict[str, str], count: int, channels: int, findings: list[Finding],
                   listing: dict[str, Any]) -> str:
-    """The manifest of a new site: keys, page count, the findings and the cache files' SHA-256."""
+    """The manifest of a new site: keys, page count, the findings and the cache files' seals."""
     manifest = {
         "cache": listing,
         "format": MANIFEST_FORMAT,
