@@ -16,6 +16,7 @@ import shutil
 import subprocess
 import sys
 import time
+from collections.abc import Callable
 from pathlib import Path
 from typing import Any
 
@@ -39,6 +40,20 @@ def _pages(folder: Path) -> dict[str, bytes]:
 def _fresh(specs: Path, out: Path) -> dict[str, bytes]:
     site.build(specs, out, incremental=False)
     return _pages(out)
+
+
+def _spy(monkeypatch: pytest.MonkeyPatch, owner: Any, name: str, label: Callable[..., str | None]) -> list[str]:
+    """``label(*args)`` of every later call of ``owner.name`` (None: not recorded); calls go through."""
+    seen: list[str] = []
+    real = getattr(owner, name)
+
+    def spying(*args: Any) -> Any:
+        if (mark := label(*args)) is not None:
+            seen.append(mark)
+        return real(*args)
+
+    monkeypatch.setattr(owner, name, spying)
+    return seen
 
 
 def test_unchanged_rebuild_touches_nothing(tmp_path: Path) -> None:
@@ -172,14 +187,7 @@ def test_unchanged_files_are_not_parsed_again(tmp_path: Path, monkeypatch: pytes
     shutil.copytree(DEMO, specs)
     out = tmp_path / "site"
     site.build(specs, out)
-    parsed: list[str] = []
-    real = load._load_channel
-
-    def counting(path: Path, rel: str, *args: Any) -> Any:
-        parsed.append(rel)
-        return real(path, rel, *args)
-
-    monkeypatch.setattr(load, "_load_channel", counting)
+    parsed = _spy(monkeypatch, load, "_load_channel", lambda path, rel, *rest: rel)
     edited = specs / "channels" / "HYD-01.md"
     edited.write_text(edited.read_text(encoding="utf-8") + "\nAccumulator pre-charge checked.\n", encoding="utf-8")
     site.build(specs, out)
@@ -203,14 +211,7 @@ def test_channel_rules_run_again_only_on_the_edited_channel(tmp_path: Path, monk
     shutil.copytree(DEMO, specs)
     out = tmp_path / "site"
     site.build(specs, out)
-    checked: list[str] = []
-    real = rules.channel_rule_findings
-
-    def counting(result: Any, system: Any) -> Any:
-        checked.append(result.channel.id)
-        return real(result, system)
-
-    monkeypatch.setattr(rules, "channel_rule_findings", counting)
+    checked = _spy(monkeypatch, rules, "channel_rule_findings", lambda result, system: result.channel.id)
     edited = specs / "channels" / "TACHO-HSS.md"  # a channel with a channel-rule finding of its own
     edited.write_text(edited.read_text(encoding="utf-8") + "\nMount torque checked.\n", encoding="utf-8")
     summary = site.build(specs, out)
@@ -230,20 +231,6 @@ def test_channel_rules_run_again_only_on_the_edited_channel(tmp_path: Path, monk
     assert _pages(out) == _fresh(specs, tmp_path / "fresh")
 
 
-def _counting_reads(monkeypatch: pytest.MonkeyPatch) -> list[str]:
-    """Channel files read by ``cache.input_keys`` from now on, by name."""
-    read: list[str] = []
-    real = cache.read_whole
-
-    def counting(path: str | Path) -> bytes:
-        if str(path).endswith(".md"):
-            read.append(Path(path).name)
-        return real(path)
-
-    monkeypatch.setattr(cache, "read_whole", counting)
-    return read
-
-
 def test_a_rebuild_reads_only_the_files_whose_stat_changed(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
     # The stat shortcut: size, mtime, ctime and inode as the previous build saw them mean the key it
     # hashed still holds.  RACY_NS = 0 because the copied files are younger than the 2 s margin.
@@ -252,7 +239,7 @@ def test_a_rebuild_reads_only_the_files_whose_stat_changed(tmp_path: Path, monke
     shutil.copytree(DEMO, specs)
     out = tmp_path / "site"
     site.build(specs, out)
-    read = _counting_reads(monkeypatch)
+    read = _spy(monkeypatch, cache, "read_whole", lambda path: Path(path).name if str(path).endswith(".md") else None)
     edited = specs / "channels" / "HYD-01.md"
     edited.write_text(edited.read_text(encoding="utf-8") + "\nAccumulator pre-charge checked.\n", encoding="utf-8")
     site.build(specs, out)
@@ -313,9 +300,7 @@ def test_worker_processes_write_the_same_site(tmp_path: Path, monkeypatch: pytes
     monkeypatch.setattr(site, "POOL_MIN_PAGES", 10_000)
     assert _pages(out) == _fresh(specs, tmp_path / "fresh2")
     # and the cache the worker wrote serves the next rebuild: nothing but the edited file is parsed
-    parsed: list[str] = []
-    real = load._load_channel
-    monkeypatch.setattr(load, "_load_channel", lambda path, rel, *a: parsed.append(rel) or real(path, rel, *a))
+    parsed = _spy(monkeypatch, load, "_load_channel", lambda path, rel, *rest: rel)
     edited.write_text(edited.read_text(encoding="utf-8") + "\nAnd again.\n", encoding="utf-8")
     site.build(specs, out)
     assert parsed == ["channels/HYD-01.md"]
@@ -417,9 +402,7 @@ def test_another_users_cache_means_parsing_again(tmp_path: Path, monkeypatch: py
     key_file = cache.key_folder() / cache.KEY_FILE
     assert key_file.stat().st_mode & 0o777 == 0o600  # readable by its owner only
     monkeypatch.setenv("XDG_CACHE_HOME", str(tmp_path / "someone-else"))  # a new key: the old seals fail
-    parsed: list[str] = []
-    real = load._load_channel
-    monkeypatch.setattr(load, "_load_channel", lambda path, rel, *a: parsed.append(rel) or real(path, rel, *a))
+    parsed = _spy(monkeypatch, load, "_load_channel", lambda path, rel, *rest: rel)
     edited = specs / "channels" / "HYD-01.md"
     edited.write_text(edited.read_text(encoding="utf-8") + "\nRe-seated.\n", encoding="utf-8")
     site.build(specs, out)
