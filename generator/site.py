@@ -34,7 +34,8 @@ Incremental builds
 ------------------
 The site carries its build cache (:mod:`generator.cache`).  A build whose tool and inputs keys
 match the current site's manifest changes nothing and returns at once.  Otherwise only changed
-files are parsed and analysed, budgets and rules run again (they span channels), spec.json is
+files are read, parsed and analysed, channel rules run only on the channels that changed, budgets,
+system rules and waivers run again (they span channels), spec.json is
 assembled from the kept figures text, the shared pages are rendered again, and a channel page or
 book section whose key is unchanged is hard-linked (or copied) from the current site, as is an
 unchanged cache shard.  The manifest and cache move with the site in the same swap, so they
@@ -528,6 +529,7 @@ def write_site(analysis: SystemAnalysis, findings: list[Finding], output: Path, 
     """
     cached = cached if cached is not None else Cached()
     figures = cached.figures_for(analysis)
+    # again, though build() did both first: the folder may have changed while the spec was analysed
     check_output(output, specs)
     env = environment()
     out = output.resolve()
