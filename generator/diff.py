@@ -31,7 +31,7 @@ DIFF_FORMAT = 1
 # budget values compared per item (the rest of each budget is identity or limits)
 BUDGET_KEYS: Mapping[str, tuple[str, ...]] = {
     "converters": ("aggregate_rate_hz", "load"),
-    "links": ("payload_bps", "load_bps", "utilisation"),
+    "links": ("data_rate_bps", "load_bps", "utilisation"),
     "stores": ("stream_bps", "bytes_needed", "utilisation", "holding_time_s"),
 }
 
@@ -187,8 +187,8 @@ def introduces(diff: Mapping[str, Any], fail_on: str) -> bool:
 
 # -------------------------------------------------------------------------- rendering
 
-_DIMS = {"aggregate_rate_hz": "Hz", "payload_bps": "bit/s", "load_bps": "bit/s", "stream_bps": "bit/s",
-         "bytes_needed": "B", "holding_time_s": "s", "data_rate_bps": "bit/s", "payload_rate_bps": "bit/s"}
+_DIMS = {"aggregate_rate_hz": "Hz", "data_rate_bps": "bit/s", "load_bps": "bit/s", "stream_bps": "bit/s",
+         "bytes_needed": "B", "holding_time_s": "s", "payload_rate_bps": "bit/s"}
 _RATIOS = {"load", "utilisation"}
 
 

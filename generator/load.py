@@ -41,6 +41,7 @@ from .model import (
     System,
     Tone,
     Waiver,
+    id_key,
 )
 from .quantities import Span, Unit, parse_quantity, parse_span, parse_unit
 from .schema import Key
@@ -714,10 +715,9 @@ def _resolve_conversion(src: _Source, raw: dict[str, Any], kind: str, system: Sy
     if rate is None and conv is not None:
         rate = conv.rate
     jitter = _value(raw.get("jitter"))
-    if jitter is None and conv is not None:
-        jitter = conv.jitter
-        if jitter is None and conv.clock and system is not None and conv.clock in system.clocks:
-            jitter = system.clocks[conv.clock].jitter
+    aperture = conv.jitter if conv is not None else None
+    clock = conv.clock if conv is not None else None
+    clock_jitter = system.clocks[clock].jitter if clock and system is not None and clock in system.clocks else None
     bits = pick("bits", conv.bits if conv else None)
     container = pick("container_bits", conv.container_bits if conv else None)
     if container is None and bits is not None:
@@ -740,7 +740,7 @@ def _resolve_conversion(src: _Source, raw: dict[str, Any], kind: str, system: Sy
         converter=conv_id, link=link or (conv.link if conv else None), rate=rate, bits=bits,
         full_scale=full_scale, gain=raw.get("gain", 1.0), jitter=jitter, container_bits=container,
         hold=raw.get("hold", "zero-order"), sinc_compensation=raw.get("sinc_compensation", False),
-        stated=frozenset(raw),
+        stated=frozenset(raw), aperture_jitter=aperture, clock_jitter=clock_jitter,
     )
 
 
@@ -793,7 +793,7 @@ def load_spec(root: Path | str, on_file: Callable[[], None] | None = None,
     for path in files:
         rel = path.relative_to(root).as_posix()
         ch = known[rel] if known is not None and rel in known else _load_channel(path, rel, system, problems)
-        folded = path.stem.lower()
+        folded = id_key(path.stem)
         if folded in seen:
             problems.append(SpecError(f"duplicate channel id '{path.stem}': {seen[folded]} has the same id "
                                       "(ids are file names and must be unique, ignoring case)", rel, 1))
@@ -805,4 +805,4 @@ def load_spec(root: Path | str, on_file: Callable[[], None] | None = None,
             on_file()
     if problems or system is None:
         raise SpecErrors(problems)
-    return Spec(str(root), system, tuple(channels[k] for k in sorted(channels)))
+    return Spec(str(root), system, tuple(channels[k] for k in sorted(channels, key=id_key)))

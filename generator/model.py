@@ -8,6 +8,7 @@ deliberate value from an inherited one.
 
 from __future__ import annotations
 
+import math
 from collections.abc import Mapping
 from dataclasses import dataclass, field
 from functools import cached_property
@@ -15,6 +16,12 @@ from types import MappingProxyType
 from typing import Any
 
 from .quantities import Span, Unit
+
+
+def id_key(channel_id: str) -> str:
+    """The one key channel ids are compared by: they are unique ignoring case, and every listing of
+    them (the spec's channel order, hence a multiplexer's scan order) sorts by it."""
+    return channel_id.lower()
 
 
 @dataclass(frozen=True)
@@ -159,11 +166,23 @@ class Conversion:
     bits: int | None = None
     full_scale: Span | None = None
     gain: float = 1.0
-    jitter: float | None = None
+    jitter: float | None = None  # the channel's own [conversion] jitter: the total, as stated
     container_bits: int | None = None
     hold: str = "zero-order"
     sinc_compensation: bool = False
     stated: frozenset[str] = frozenset()  # keys written in the channel file itself
+    aperture_jitter: float | None = None  # the converter's, inherited
+    clock_jitter: float | None = None  # the converter's clock's, inherited
+
+    @property
+    def total_jitter(self) -> float | None:
+        """Rms sampling jitter: the channel's own value when it states one, else the converter's
+        aperture jitter and its clock's jitter added as a root sum of squares, being independent
+        (common practice; ADI MT-007); None when none is known."""
+        if self.jitter is not None:
+            return self.jitter
+        parts = [v for v in (self.aperture_jitter, self.clock_jitter) if v is not None]
+        return math.sqrt(math.fsum(v * v for v in parts)) if parts else None
 
 
 @dataclass(frozen=True)

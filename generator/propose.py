@@ -37,7 +37,7 @@ from .analysis import ChannelResult, SystemAnalysis, analyze, analyze_channel
 from .analysis.budgets import BudgetIndex, Budgets, Reach
 from .dsp import filters as flt
 from .load import locate_keys, split_header
-from .model import Channel, Converter, Filter, Spec
+from .model import Channel, Converter, Filter, Spec, id_key
 from .quantities import format_quantity
 from .rules import Finding, run_rules
 
@@ -79,8 +79,8 @@ class Design:
     data_rate_bps: float
     group_delay_s: float
     droop_db: float
-    alias_db: float  # analog filter loss at the stop edge
-    alias_edge: str  # "the first alias" | "the modulator alias"
+    alias_db: float  # the channel's alias rejection with this design (least over every fold band)
+    alias_edge: str  # where that least rejection lies, in words
 
     def as_filter(self) -> flt.AnalogFilter:
         return flt.design(self.family, self.order, self.corner_hz, self.ripple_db, self.stopband_db)
@@ -92,7 +92,8 @@ class Design:
     def explain(self) -> str:
         """'48 kS/s from 24.576 MHz / 512; 6th-order butterworth at 8.2 kHz: 91 dB at the first alias, ...'"""
         return (f"{_rate_words(self.rate_hz)} from {self.rate_origin}; {_ordinal(self.order)}-order {self.family} at "
-                f"{format_quantity(self.corner_hz, 'Hz')}: {self.alias_db:.1f} dB at {self.alias_edge}, "
+                f"{format_quantity(self.corner_hz, 'Hz')}: aliases rejected by {self.alias_db:.1f} dB (least at "
+                f"{self.alias_edge}), "
                 f"{self.droop_db:.2g} dB droop")
 
 
@@ -374,13 +375,15 @@ def candidates(spec: Spec, channel: Channel, rules: Sequence[str],
                 if not checked[key]:
                     continue
                 s = analyze_channel(with_design(channel, rate, filt), spec).sampling
-                edge = (s.stop_edge_hz if s is not None and s.stop_edge_hz else rate - f_high)
+                rejection = s.alias_rejection_db if s is not None and s.alias_rejection_db is not None else 0.0
+                worst = s.alias_worst_hz if s is not None else None
                 out.append(Design(
                     rate_hz=rate, rate_origin=origin, family=family, order=order, corner_hz=filt.corner_hz,
                     ripple_db=filt.ripple_db, stopband_db=filt.stopband_db, data_rate_bps=rate * container,
                     group_delay_s=flt.group_delay_s(filt, 0.0), droop_db=flt.attenuation_db(filt, f_high),
-                    alias_db=flt.attenuation_db(filt, edge),
-                    alias_edge="the modulator alias" if delta_sigma else "the first alias"))
+                    alias_db=rejection,
+                    alias_edge=("frequencies growing without bound" if worst is None or math.isinf(worst)
+                                else format_quantity(worst, "Hz"))))
                 break
     return out
 
@@ -502,7 +505,7 @@ def flagged_channels(spec: Spec, findings: Sequence[Finding] | None = None) -> l
         findings = run_rules(analyze(spec), only=TARGET_RULES)
     ids = {c for f in findings if f.rule in TARGET_RULES and f.rule not in FIXED_BY_OTHER_MEANS
            and not f.waived and f.severity in ("error", "warning") for c in f.channels}
-    return sorted(ids)
+    return sorted(ids, key=id_key)
 
 
 def propose(spec: Spec, channel_ids: Sequence[str] | None = None,

@@ -114,8 +114,16 @@ class Span:
 
     @property
     def peak(self) -> float:
-        """Largest magnitude either end reaches, max(|low|, |high|)."""
+        """Largest magnitude either end reaches, max(|low|, |high|): the highest voltage the range
+        puts on a terminal (what safety limits and a driven device's limit are about)."""
         return max(abs(self.low), abs(self.high))
+
+    @property
+    def amplitude(self) -> float:
+        """Amplitude of the largest sine that fits, about the range's centre: (high - low) / 2.
+        10 V for ``"±10 V"``, 2.5 V for ``"0..5 V"`` (a sine centred on 2.5 V); a full-scale sine is
+        0 dBFS [AES17] on either kind of range."""
+        return (self.high - self.low) / 2.0
 
 
 @dataclass(frozen=True)

@@ -75,19 +75,21 @@ CHANNEL_KEYS: tuple[Key, ...] = (
     # [signal]
     Key("signal", "band", PAIR, "Lowest and highest frequency that must be captured or produced.",
         dims=("Hz",), example='["0.5 Hz", "5 kHz"]', kinds=("input", "output"), required=True),
-    Key("signal", "peak", QUANTITY, "Largest amplitude about zero, in the engineering unit.",
+    Key("signal", "peak", QUANTITY, "Largest amplitude of the signal about its own centre (a sine of "
+        "this amplitude), in the engineering unit.",
         dims=(ENG,), example='"50 g"', kinds=("input", "output"), positive=True),
     Key("signal", "resolution", QUANTITY, "Smallest change that must be resolved (one LSB at most).",
         dims=(ENG,), example='"0.01 g"', kinds=("input", "output"), positive=True),
     Key("signal", "snr", QUANTITY, "Signal-to-noise ratio required in band, for a signal at `peak`.",
         dims=("dB",), example='"80 dB"', kinds=("input", "output")),
-    Key("signal", "flatness", QUANTITY, "Gain error allowed at the band edge (loss, in dB).",
+    Key("signal", "flatness", QUANTITY, "Largest loss allowed anywhere in the band, relative to the "
+        "filter's peak gain (dB).",
         dims=("dB",), default='"0.5 dB"', example='"0.1 dB"', kinds=("input", "output"), positive=True),
     Key("signal", "out_of_band", QUANTITY, "Worst level of content above the band, sine-referenced dBFS.",
         dims=("dBFS",), default='"0 dBFS"', example='"-20 dBFS"', kinds=("input",)),
     Key("signal", "filtered_to_band", BOOL, "Data are digitally filtered to the band after sampling "
         "(earns processing gain).", default="false", example="true", kinds=("input",)),
-    Key("signal", "image_rejection", QUANTITY, "Required suppression of the first image below the tone.",
+    Key("signal", "image_rejection", QUANTITY, "Required suppression of every image below its tone.",
         dims=("dB",), example='"60 dB"', kinds=("output",), positive=True),
     Key("signal", "limit", QUANTITY, "Largest amplitude the driven device accepts, in the engineering unit.",
         dims=(ENG,), example='"10 V"', kinds=("output",), positive=True),
@@ -113,12 +115,14 @@ CHANNEL_KEYS: tuple[Key, ...] = (
     Key("conversion", "rate", QUANTITY, "Sample rate (frame or line rate for image channels).",
         dims=("Hz",), example='"51.2 kS/s"', positive=True),
     Key("conversion", "bits", INT, "Converter resolution.", example="24", minimum=1, maximum=64),
-    Key("conversion", "full_scale", SPAN, "Converter input (or output) range.", dims=("V",),
-        example='"±10 V"'),
+    Key("conversion", "full_scale", SPAN, "Converter input (or output) range: \"±10 V\" (bipolar) or \"0..5 V\" "
+        "(unipolar); a full-scale sine has half its width as amplitude.", dims=("V",),
+        example='"±10 V"', kinds=("input", "output")),
     Key("conversion", "gain", GAIN, "Gain between sensor and converter (or converter and actuator), "
-        "V/V or dB.", default="1", example='"20 dB"', positive=True),
-    Key("conversion", "jitter", QUANTITY, "Rms aperture or clock jitter.", dims=("s",),
-        example='"50 ps"', minimum=0.0),
+        "V/V or dB.", default="1", example='"20 dB"', positive=True, kinds=("input", "output")),
+    Key("conversion", "jitter", QUANTITY, "Total rms sampling jitter at this channel; without it the "
+        "converter's aperture jitter and its clock's jitter add as a root sum of squares.", dims=("s",),
+        example='"50 ps"', minimum=0.0, kinds=("input", "output")),
     Key("conversion", "container_bits", INT, "Bits each sample occupies on the link and in storage.",
         example="32", minimum=1, maximum=128),
     Key("conversion", "hold", CHOICE, "Reconstruction hold of a D/A output.",
@@ -155,7 +159,7 @@ CHANNEL_KEYS: tuple[Key, ...] = (
     Key("stated", "data_rate", QUANTITY, "Data rate the spec states elsewhere; checked against the "
         "computed one.", dims=("bit/s",), example='"1.536 Mbit/s"', positive=True),
     Key("stated", "lsb", QUANTITY, "LSB size the spec states elsewhere; checked against the computed one.",
-        dims=("V",), example='"2.384 µV"', positive=True),
+        dims=("V",), example='"2.384 µV"', positive=True, kinds=("input", "output")),
     # [[waiver]]
     Key("waiver", "rule", TEXT, "Id of the rule whose finding on this channel is accepted.",
         example='"band-edge-droop"', required=True),
@@ -217,7 +221,7 @@ SYSTEM_KEYS: tuple[Key, ...] = (
     Key("clocks.*", "jitter", QUANTITY, "Rms clock jitter.", dims=("s",), example='"10 ps"', minimum=0.0),
     Key("links.*", "capacity", QUANTITY, "Raw capacity.", dims=("bit/s",), required=True,
         example='"1 Gbit/s"', positive=True),
-    Key("links.*", "overhead", QUANTITY, "Protocol overhead added to the payload.", dims=("1",),
+    Key("links.*", "overhead", QUANTITY, "Protocol overhead added to the data rate it carries.", dims=("1",),
         default='"0 %"', example='"8 %"', minimum=0.0),
     Key("links.*", "headroom", QUANTITY, "Share of capacity kept free.", dims=("1",), default='"0 %"',
         example='"20 %"', minimum=0.0, maximum=0.99),

@@ -629,11 +629,11 @@ def write_planned(specs: Path | str, planned: Iterable[Planned], force: bool = F
 # --------------------------------------------------------------------------- export
 
 EXPORT_FIGURES = (
-    "sample_rate_hz", "nyquist_hz", "oversampling_ratio", "first_alias_hz", "alias_rejection_db",
+    "sample_rate_hz", "nyquist_hz", "rate_over_nyquist", "first_alias_hz", "alias_rejection_db",
     "band_edge_droop_db", "peak_level_dbfs", "range_usage", "headroom_db", "lsb_volts", "lsb_units",
     "sqnr_db", "jitter_snr_db", "sensor_snr_db", "total_snr_db", "enob_bits", "dynamic_range_db",
     "data_rate_bps", "zoh_droop_db", "first_image_hz", "image_rejection_db", "output_peak_volts",
-    "frame_rate_hz", "pixel_pitch_m", "spatial_nyquist_cycles_per_m", "image_data_rate_bps",
+    "frame_rate_hz", "pixel_pitch_m", "spatial_nyquist_cycles_per_m",
 )
 """The computed figures the table carries: what a supplier or a spreadsheet needs most."""
 

@@ -171,13 +171,19 @@ def test_voltage_channel_without_sensitivity() -> None:
     assert_allclose(f["lsb_units"], 15.2587890625e-6, rtol=1e-12)
 
 
-def test_outputs_get_lsb_only_and_images_nothing() -> None:
+def test_outputs_get_a_budget_and_images_nothing() -> None:
     # DAC 16-bit ±10 V with a x10 amplifier driving volts: 305.176 µV code width, 3.05176 mV at the load
-    out = _result(_channel(unit="V", kind="output", peak="70 V", sensitivity=None, full_scale="±10 V"))
+    out = _result(_channel(unit="V", kind="output", peak="70 V", sensitivity=None, full_scale="±10 V",
+                           jitter=None))
     f = out.figures()
     assert_allclose(f["lsb_units"], 3.05176e-3, rtol=1e-5)
     assert_allclose(f["sqnr_db"], 98.0905, atol=1e-4)
-    assert "total_snr_db" not in f and "peak_volts" not in f
+    # the converter must produce 70 V / 10 = 7 V: 70 % of its 10 V amplitude (arithmetic)
+    assert_allclose(f["peak_volts"], 7.0, rtol=1e-12)
+    assert_allclose(f["range_usage"], 0.7, rtol=1e-12)
+    # quantization only: SQNR of a full-scale sine less 20 log10(10 / 7) = 98.0905 - 3.0980 = 94.9925 dB
+    # (tests/REFERENCES.md R5.2 [MT-001], scaled to the sine's amplitude)
+    assert_allclose(f["total_snr_db"], 98.0905 - 20 * math.log10(10 / 7), atol=1e-4)
     image = _channel(kind="image")
     assert analyze_amplitude(image, SYSTEM) is None
 
@@ -214,11 +220,13 @@ def test_demo_thermocouple_lsb_matches_its_notes() -> None:
 
 
 def test_unipolar_full_scale() -> None:
-    # "0..10 V" is a 10 V range with a 10 V peak (DESIGN conventions): 2 V of signal uses 20 %;
+    # "0..10 V" is a 10 V range; the largest sine it holds has a 5 V amplitude about 5 V, and that sine is
+    # 0 dBFS (AES17, sine-referenced dBFS), so a signal of 2 V amplitude uses 2 / 5 = 40 % (arithmetic);
     # LSB 10 V / 65536 = 152.588 µV; the full-scale sine for the dynamic range spans the range,
     # 5 V peak = 3.53553 V rms, over 44.0484 µV of quantization noise: 80148 -> 98.0905 dB (= SQNR [MT-001])
     a = _result(_channel(unit="V", peak="2 V", sensitivity=None, gain=1.0, full_scale="0..10 V"))
     f = a.figures()
-    assert_allclose(f["range_usage"], 0.2, rtol=1e-12)
+    assert_allclose(f["range_usage"], 0.4, rtol=1e-12)
+    assert_allclose(f["headroom_db"], 20 * math.log10(5 / 2), rtol=1e-12)
     assert_allclose(f["lsb_volts"], 152.587890625e-6, rtol=1e-12)
     assert_allclose(f["dynamic_range_db"], 98.0905, atol=1e-4)

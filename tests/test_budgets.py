@@ -13,8 +13,9 @@ from numpy.testing import assert_allclose
 from scipy import signal
 
 from generator.analysis import analyze
-from generator.analysis.budgets import _filter_zpk
+from generator.analysis.budgets import member_filter
 from generator.dsp import budgets as dsp
+from generator.dsp import filters
 from generator.load import load_spec
 from generator.model import Filter
 from generator.rules import Finding, run_rules
@@ -84,9 +85,9 @@ def test_store_holding_time() -> None:
     assert dsp.holding_time(1e12, 0.0) == math.inf
 
 
-def _scipy_phase(zpk: dsp.Zpk, f_hz: float) -> float:
+def _scipy_phase(filt: filters.AnalogFilter, f_hz: float) -> float:
     """Phase by scipy.signal.freqs on the transfer-function form, unwrapped on a dense grid from DC."""
-    b, a = signal.zpk2tf(*zpk)
+    b, a = signal.zpk2tf(np.array(filt.zeros), np.array(filt.poles), filt.gain)
     w = np.linspace(0.0, 2 * np.pi * f_hz, 4001)
     _, h = signal.freqs(b, a, worN=w)
     return float(np.unwrap(np.angle(h))[-1])
@@ -95,27 +96,27 @@ def _scipy_phase(zpk: dsp.Zpk, f_hz: float) -> float:
 @pytest.mark.parametrize("family", ["butterworth", "bessel", "chebyshev1", "chebyshev2", "elliptic"])
 @pytest.mark.parametrize("order", [2, 4, 7])
 def test_phase_response_matches_scipy_freqs(family: str, order: int) -> None:
-    zpk = _filter_zpk(Filter(family, order, 1000.0, 0.5, 60.0))
+    zpk = member_filter(Filter(family, order, 1000.0, 0.5, 60.0))
     assert zpk is not None
     # scipy.signal.freqs, unwrapped: the exact phase at 0.3, 0.9 and 1.0 x the corner
     for f in (300.0, 900.0, 1000.0):
-        assert_allclose(dsp.phase_response(zpk, f), _scipy_phase(zpk, f), atol=1e-6)
+        assert_allclose(filters.phase_rad(zpk, f), _scipy_phase(zpk, f), atol=1e-6)
 
 
 def test_group_delay_dc_matches_handbook() -> None:
     # check-values section 2 (Bessel vs Butterworth table, [WT]): tau0 x wc = 2.6131 (butter 4), 2.1139 (bessel 4)
     wc = 2 * math.pi * 1000.0
-    butter = _filter_zpk(Filter("butterworth", 4, 1000.0))
-    bessel = _filter_zpk(Filter("bessel", 4, 1000.0))
+    butter = member_filter(Filter("butterworth", 4, 1000.0))
+    bessel = member_filter(Filter("bessel", 4, 1000.0))
     assert butter is not None and bessel is not None
-    assert dsp.group_delay_dc(butter) * wc == pytest.approx(2.6131, rel=1e-4)
-    assert dsp.group_delay_dc(bessel) * wc == pytest.approx(2.1139, rel=1e-4)
+    assert filters.group_delay_s(butter, 0.0) * wc == pytest.approx(2.6131, rel=1e-4)
+    assert filters.group_delay_s(bessel, 0.0) * wc == pytest.approx(2.1139, rel=1e-4)
 
 
 def test_phase_difference_exact_vs_dc_estimate_near_the_corner() -> None:
     # Butterworth 4 against Bessel 4, both -3 dB at 1 kHz, judged at 900 Hz (near the corner).
-    a = _filter_zpk(Filter("butterworth", 4, 1000.0))
-    b = _filter_zpk(Filter("bessel", 4, 1000.0))
+    a = member_filter(Filter("butterworth", 4, 1000.0))
+    b = member_filter(Filter("bessel", 4, 1000.0))
     assert a is not None and b is not None
     exact = dsp.phase_difference(a, b, 900.0)
     # the same difference straight from scipy.signal.freqs (unwrapped)
@@ -130,9 +131,10 @@ def test_phase_difference_exact_vs_dc_estimate_near_the_corner() -> None:
 
 
 def test_scan_skew_phase() -> None:
-    # same filter, 170 us apart: 2 pi x 100 Hz x 170e-6 = 0.10681 rad (arithmetic)
-    z = _filter_zpk(Filter("butterworth", 4, 400.0))
-    assert dsp.phase_difference(z, z, 100.0, 0.0, 170e-6) == pytest.approx(2 * math.pi * 100 * 170e-6)
+    # same filter, b sampled 170 us after a: b reads x(nT + 170 us), so it leads a by 2 pi x 100 Hz x 170e-6 =
+    # 0.10681 rad (arithmetic; the sign is checked against a sampled simulation in test_truth.py)
+    z = member_filter(Filter("butterworth", 4, 400.0))
+    assert dsp.phase_difference(z, z, 100.0, 0.0, 170e-6) == pytest.approx(-2 * math.pi * 100 * 170e-6)
 
 
 # ------------------------------------------------------------------ fixtures
@@ -259,7 +261,7 @@ def test_group_skew_exact_phase(tree: Path) -> None:
     found = _findings(tree, "group-skew")
     assert len(found) == 1 and set(found[0].channels) == {"P-1", "P-2"}
     g = analyze(load_spec(tree)).budgets.group("pair")
-    za, zb = _filter_zpk(Filter("butterworth", 4, 400.0)), _filter_zpk(Filter("bessel", 4, 400.0))
+    za, zb = member_filter(Filter("butterworth", 4, 400.0)), member_filter(Filter("bessel", 4, 400.0))
     assert za is not None and zb is not None
     # the spread equals |phase difference| from scipy.signal.freqs at 100 Hz
     assert g.phase_error_rad == pytest.approx(abs(_scipy_phase(za, 100.0) - _scipy_phase(zb, 100.0)), abs=1e-6)
@@ -297,7 +299,7 @@ def test_demo_budgets() -> None:
     net = a.budgets.link("net0")
     # 9 x 51.2 kS/s x 32 + (2 x 2.048 k + 1 k + 2 x 400) x 16 + 2 x 12.8 k x 16 + 1.5 k x 2048 x 16
     expected = 9 * 51.2e3 * 32 + (2 * 2048 + 1000 + 2 * 400) * 16 + 2 * 12.8e3 * 16 + 1500 * 2048 * 16
-    assert net.payload_bps == pytest.approx(expected)
+    assert net.data_rate_bps == pytest.approx(expected)
     assert net.utilisation == pytest.approx(expected * 1.08 / 100e6)
     assert all(c.ok for c in a.budgets.clocks)
 

@@ -65,7 +65,7 @@ def _butterworth_channel(demo: SystemAnalysis) -> ChannelResult:
                 and not r.sampling.delta_sigma)
     assert base.sampling is not None
     s = SamplingResult(rate_hz=2400.0, band_low_hz=0.0, band_high_hz=400.0, nyquist_hz=1200.0,
-                       oversampling_ratio=3.0, first_alias_hz=2000.0, flatness_db=0.5,
+                       rate_over_nyquist=3.0, first_alias_hz=2000.0, flatness_db=0.5,
                        filter=flt.design("butterworth", 4, 1000.0), required_alias_rejection_db=20.0,
                        stop_edge_hz=2000.0, alias_rejection_source="analog filter")
     return ChannelResult(channel=base.channel, sampling=s)

@@ -64,7 +64,7 @@ def test_diff_two_revisions_json(repo: Path, capsys: pytest.CaptureFixture[str],
     sar_load = next(c for c in conv["sar"]["changes"] if c["key"] == "load")
     assert sar_load["new"] == 0.0 and sar_load["old"] == pytest.approx(10 / 250e3)
     link = d["budgets"]["links"][0]
-    payload = next(c for c in link["changes"] if c["key"] == "payload_bps")
+    payload = next(c for c in link["changes"] if c["key"] == "data_rate_bps")
     # base: 1.536 Mbit/s + 160 bit/s; head: 512 kbit/s + 1.536 Mbit/s
     assert payload["old"] == 1_536_160 and payload["new"] == 2_048_000
     # ACC-2 inherits 48 kS/s on the same simultaneous converter: shared-rate as well; and the 10 kHz band

@@ -97,10 +97,12 @@ def test_a_synthetic_tree_with_rejections_gets_the_same_proposals(tmp_path: Path
     for b in (1, 3):
         _edit(bay[b] / f"STR-BLD-2-{b}.md", 'rate = "2.048 kS/s"', 'rate = "150 S/s"')
     _edit(bay[1] / "ACC-GBX-01-1.md", 'band = ["2 Hz", "20 kHz"]', 'band = ["2 Hz", "30 kHz"]')
-    # bay 2: a tone that folds through the modulator alias on one of a phase-matched pair: any
-    # analog filter the search finds puts the pair out of phase (group-skew rejects it)
+    # bay 2: a tone that folds through the modulator alias on one of a phase-matched pair, too strong for
+    # the pair's front-end filter (3rd-order butterworth at 100 kHz: 108.9 dB at 6.5436 MHz, +20 dBFS lands
+    # at -88.9 dBFS, above the -96 dBFS floor): any analog filter the search finds instead puts the pair out
+    # of phase (group-skew rejects it)
     _edit(bay[2] / "ACC-GBX-01-2.md", "[conversion]",
-          '[[interference]]\nfrequency = "6.5436 MHz"\nlevel = "1 V"\nsource = "inverter"\n\n[conversion]')
+          '[[interference]]\nfrequency = "6.5436 MHz"\nlevel = "100 V"\nsource = "inverter"\n\n[conversion]')
     spec = load_spec(root)
     assert "ACC-GBX-01-2" in P.flagged_channels(spec)
     # bays 1 and 3: the link (bay 1) and the multiplexed converter (bay 3) left just short of what

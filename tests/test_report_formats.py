@@ -92,7 +92,7 @@ def test_sarif_of_the_demo(capsys: pytest.CaptureFixture[str], monkeypatch: pyte
     waived = [r for r in results if "suppressions" in r]
     assert any(r["suppressions"][0]["justification"].startswith("The two bridges") for r in waived)
     uris = {r["locations"][0]["physicalLocation"]["artifactLocation"]["uri"] for r in results}
-    assert "specs/channels/CAM-TIP.md" in uris and "specs/system.toml" in uris
+    assert "specs/channels/TACHO-HSS.md" in uris and "specs/system.toml" in uris
     for r in results:  # the uri resolves to a real file from the repository root
         assert (DEMO.parent / r["locations"][0]["physicalLocation"]["artifactLocation"]["uri"]).is_file()
 

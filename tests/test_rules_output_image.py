@@ -112,7 +112,7 @@ def test_demo_outputs_and_camera_carry_their_figures() -> None:
     assert cam["pixel_pitch_m"] == pytest.approx(14e-6)
     assert cam["spatial_nyquist_cycles_per_m"] == pytest.approx(35714.2857)
     assert cam["frame_bits"] == 2048 * 12 and cam["frame_bits_stored"] == 2048 * 16
-    assert cam["image_data_rate_bps"] == pytest.approx(36.864e6)
+    assert cam["payload_rate_bps"] == pytest.approx(36.864e6)
     assert cam["spatial_nyquist_y_cycles_per_m"] is None  # line sensor: no vertical sampling by pixels
 
 
@@ -189,7 +189,7 @@ def test_image_rejection_fix_corner_is_sufficient(minimal_tree: Path) -> None:
     need = 'image_rejection = "90 dB"'
     _write(minimal_tree, "OUT-1", _output("2 kHz", extra_signal=need, filt=filt.format("10 kHz")))
     _, found = _check(minimal_tree, "image-rejection")
-    corner = re.search(r"corner at most ([0-9.]+) kHz", found[0].message)
+    corner = re.search(r"corner to at most ([0-9.]+) kHz", found[0].message)
     assert corner is not None
     lower = filt.format(f"{float(corner.group(1)) - 0.01} kHz")
     _write(minimal_tree, "OUT-1", _output("2 kHz", extra_signal=need, filt=lower))

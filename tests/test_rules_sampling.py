@@ -106,8 +106,11 @@ def test_delta_sigma_sources(tmp_path: Path) -> None:
     assert_allclose(s.alias_rejection_db, 35.742, rtol=1e-4)
     t = _result("alias-rejection-digital-pass", tmp_path)
     assert t.alias_rejection_source == "digital decimation filter"
-    assert t.alias_rejection_db == 100.0
-    assert t.modulator_alias_rejection_db is None  # no analog filter declared: not modelled
+    # 100 dB of decimation stopband plus the 4th-order butterworth at 100 kHz at the first alias, 28 kHz:
+    # 10 log10(1 + (f/fc)^2n) [WT]
+    assert_allclose(t.alias_rejection_db, 100.0 + 10 * math.log10(1 + 0.28**8), rtol=1e-12)
+    # the same filter at the lowest frequency folding through the modulator, 6.144 MHz - 20 kHz [WT]
+    assert_allclose(t.modulator_alias_rejection_db, 10 * math.log10(1 + (6.124e6 / 100e3) ** 8), rtol=1e-9)
 
 
 def test_demo_carries_the_figures_and_warns_where_expected() -> None:
@@ -115,7 +118,7 @@ def test_demo_carries_the_figures_and_warns_where_expected() -> None:
                          capture_output=True, text=True, cwd=ROOT, check=False)
     assert run.returncode == 0, run.stdout + run.stderr
     doc = json.loads(run.stdout)
-    keys = {"sample_rate_hz", "nyquist_hz", "band_low_hz", "band_high_hz", "oversampling_ratio",
+    keys = {"sample_rate_hz", "nyquist_hz", "band_low_hz", "band_high_hz", "rate_over_nyquist",
             "first_alias_hz", "band_edge_droop_db", "alias_rejection_db", "alias_rejection_source",
             "group_delay_dc_s", "group_delay_band_edge_s", "required_alias_rejection_db",
             "min_filter_order", "interference_folds"}

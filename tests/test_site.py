@@ -219,9 +219,11 @@ def test_folding_chart_places_tones_where_they_fold(tmp_path: Path) -> None:
     # 1 V on a ±10 V converter at unity gain: 20 log10(1/10) = -20 dBFS (sine-referenced, AES17)
     np.testing.assert_allclose(ys, [-20.0, -20.0], atol=1e-9)
     # where they land: both tones sit in the decimation filter's stopband (>= 0.5465 fs = 5.465 kHz from
-    # every multiple of the 6.144 MHz modulator rate), so each arrives 100 dB lower (system.toml of the fixture)
+    # every multiple of the 6.144 MHz modulator rate), so each arrives 100 dB lower (system.toml of the fixture),
+    # less the fixture's 3rd-order butterworth at 100 kHz: 10 log10(1 + (f / fc)^6) [WT]
     ys_after = np.frombuffer(base64.b64decode(landed["y"]["bdata"]), dtype="<f8")
-    np.testing.assert_allclose(ys_after, [-120.0, -120.0], atol=1e-9)
+    butter = [10 * np.log10(1 + (f / 100e3) ** 6) for f in (7e3, 15e3)]
+    np.testing.assert_allclose(ys_after, [-120.0 - butter[0], -120.0 - butter[1]], atol=1e-9)
     assert "zone 4, inverted" in landed["text"][1]
     # the tone's source reaches plotly only escaped, and the JSON cannot close its <script>
     assert "<img" not in chart.to_json() and "&lt;img" in json.loads(chart.to_json())["data"][1]["text"][1]

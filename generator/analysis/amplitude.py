@@ -5,8 +5,11 @@ not to full scale; only ``sqnr_db`` and ``dynamic_range_db`` are full-scale figu
 counted over one noise bandwidth for all contributions: the band's width when the data are
 filtered to the band (which is when processing gain is credited), otherwise 0..fs/2.
 
-Volts are at the converter input (after the gain) unless a row says otherwise; engineering-unit
-values are referred back to the measurand through the sensitivity and the gain.
+Volts are at the converter (after the gain on an input, before it on an output) unless a row
+says otherwise; engineering-unit values are referred to the measurand through the sensitivity
+and the gain of an input, or through the gain after the D/A converter of an output.  The full
+scale's *amplitude* is half its width (the largest sine that fits, about the range's centre), on
+a unipolar range as on a bipolar one: ``peak`` is an amplitude about the signal's own centre.
 """
 
 from __future__ import annotations
@@ -21,13 +24,19 @@ from .figures import FigureValue, figure
 _SIGNAL = "signal = sine at the channel's peak, rms = peak / sqrt(2)"
 
 PEAK_VOLTS = figure(
-    "peak_volts", "Peak at the converter", "V", "V_pk = peak x sensitivity x gain", "requirement; sensor data"
+    "peak_volts", "Peak at the converter", "V", "V_pk = peak x sensitivity x gain (input); peak / gain (output)",
+    "requirement; sensor data"
 )
 RANGE_USAGE = figure(
-    "range_usage", "Share of full scale used", "%", "V_pk / full-scale peak", "definition"
+    "range_usage", "Share of full scale used", "%", "V_pk / full-scale amplitude, amplitude = (high - low) / 2",
+    "definition"
 )
 HEADROOM = figure(
-    "headroom_db", "Headroom to full scale", "dB", "20 log10(full-scale peak / V_pk)", "definition"
+    "headroom_db", "Headroom to full scale", "dB", "20 log10(full-scale amplitude / V_pk)", "definition"
+)
+JITTER = figure(
+    "sampling_jitter_s", "Rms sampling jitter", "s",
+    "the channel's own jitter, else sqrt(t_aperture^2 + t_clock^2)", "ADI MT-007 (independent jitter adds as rss)"
 )
 LSB_VOLTS = figure(
     "lsb_volts", "LSB (code width)", "V",
@@ -60,8 +69,9 @@ TOTAL_SNR = figure(
     f"-10 log10(sum 10^(-SNR_i / 10)) over quantization, jitter, sensor; {_SIGNAL}", "ADI MT-003; ADI AN-756",
 )
 ENOB = figure(
-    "enob_bits", "Effective bits at the channel's peak", "",
-    "(total SNR - 10 log10(1.5)) / 20 log10(2) (= (SINAD - 1.76) / 6.02), not corrected to full scale",
+    "enob_bits", "Effective bits at the channel's peak, from noise only (distortion not modelled)", "",
+    "(total SNR - 10 log10(1.5)) / 20 log10(2), not corrected to full scale; the data-sheet ENOB uses SINAD, "
+    "which adds distortion",
     "ADI MT-003",
 )
 DYNAMIC_RANGE = figure(
@@ -89,7 +99,7 @@ class AmplitudeResult:
     kind: str
     bits: int
     full_scale_range_volts: float
-    full_scale_peak_volts: float
+    full_scale_amplitude_volts: float
     lsb_volts: float
     sqnr_db: float
     quantization_noise_volts: float
@@ -99,6 +109,7 @@ class AmplitudeResult:
     peak_volts: float | None = None
     processing_gain_db: float | None = None
     quantization_snr_db: float | None = None  # in band, relative to the signal
+    jitter_s: float | None = None
     jitter_snr_db: float | None = None
     sensor_snr_db: float | None = None
     total_snr_db: float | None = None
@@ -107,13 +118,13 @@ class AmplitudeResult:
 
     @property
     def range_usage(self) -> float | None:
-        return None if self.peak_volts is None else self.peak_volts / self.full_scale_peak_volts
+        return None if self.peak_volts is None else self.peak_volts / self.full_scale_amplitude_volts
 
     @property
     def headroom_db(self) -> float | None:
         if self.peak_volts is None or self.peak_volts <= 0:
             return None
-        return q.amplitude_db(self.full_scale_peak_volts / self.peak_volts)
+        return q.amplitude_db(self.full_scale_amplitude_volts / self.peak_volts)
 
     @property
     def lsb_si(self) -> float | None:
@@ -140,6 +151,7 @@ class AmplitudeResult:
             SQNR: self.sqnr_db,
             QNOISE: self.quantization_noise_volts,
             PGAIN: self.processing_gain_db,
+            JITTER: self.jitter_s,
             JITTER_SNR: self.jitter_snr_db,
             SENSOR_SNR: self.sensor_snr_db,
             TOTAL_SNR: self.total_snr_db,
@@ -162,11 +174,18 @@ class AmplitudeResult:
 
 
 def _volts_per_unit(channel: Channel) -> float | None:
-    """Volts at the converter per SI unit of the measurand; None when the chain is not known."""
+    """Volts at the converter per SI unit of the measurand; None when the chain is not known.
+
+    An input: sensitivity x gain (a measurand in volts is at the gain stage's input).  An output
+    whose unit is a voltage: 1 / gain, the driven voltage being the converter's times the gain
+    after it.  Other outputs name no way back to the converter."""
+    gain = channel.conversion.gain
+    if channel.kind == "output":
+        return 1.0 / gain if channel.unit.dim == "V" and gain > 0 else None
     sensitivity = channel.sensor.sensitivity
     if sensitivity is None and channel.unit.dim == "V":
         sensitivity = 1.0  # the measurand is a voltage at the gain stage's input
-    return None if sensitivity is None else sensitivity * channel.conversion.gain
+    return None if sensitivity is None else sensitivity * gain
 
 
 def _noise_bandwidth(channel: Channel) -> tuple[float | None, float]:
@@ -176,7 +195,7 @@ def _noise_bandwidth(channel: Channel) -> tuple[float | None, float]:
     if rate is None or rate <= 0:
         return (band[1] - band[0] if band else None), 0.0
     width = band[1] - band[0] if band else None
-    if channel.signal.filtered_to_band and width is not None and 0 < width < rate / 2.0:
+    if channel.kind == "input" and channel.signal.filtered_to_band and width is not None and 0 < width < rate / 2.0:
         return width, q.processing_gain_db(rate, width)
     return rate / 2.0, 0.0
 
@@ -220,20 +239,18 @@ def analyze_amplitude(channel: Channel, system: System) -> AmplitudeResult | Non
         kind=channel.kind,
         bits=conv.bits,
         full_scale_range_volts=span.width,
-        full_scale_peak_volts=span.peak,
+        full_scale_amplitude_volts=span.amplitude,
         lsb_volts=lsb,
         sqnr_db=q.sqnr_db(conv.bits),
         quantization_noise_volts=qnoise,
         unit_factor=channel.unit.factor,
     )
-    if channel.kind == "output":
-        # an output's code width, referred through the gain to the driven voltage
-        per_unit = 1.0 / conv.gain if channel.unit.dim == "V" and conv.gain > 0 else None
-        return replace(base, volts_per_unit=per_unit)
-    return _input(channel, base)
+    return _budget(channel, base)
 
 
-def _input(channel: Channel, base: AmplitudeResult) -> AmplitudeResult:
+def _budget(channel: Channel, base: AmplitudeResult) -> AmplitudeResult:
+    """Range use and the noise budget of an input (quantization, jitter, sensor) or of an output
+    (quantization and jitter of the D/A converter, referred through the gain after it)."""
     per_unit = _volts_per_unit(channel)
     peak = channel.signal.peak
     peak_volts = None if per_unit is None or peak is None else abs(peak) * per_unit
@@ -250,9 +267,10 @@ def _input(channel: Channel, base: AmplitudeResult) -> AmplitudeResult:
     q_band = base.quantization_noise_volts / q.amplitude_ratio(pg)
     rows.append(Contribution("quantization", q_band, units(q_band), _db_re(signal_v, q_band)))
     # sampling jitter, on a sine at the band top
-    jitter = channel.conversion.jitter
+    jitter = channel.conversion.total_jitter
     band = channel.signal.band
     jitter_snr = None
+    jitter_used = jitter if jitter is not None and jitter > 0 else None
     if jitter is not None and jitter > 0 and band is not None and band[1] > 0:
         jitter_snr = q.jitter_snr_db(band[1], jitter)
         j_volts = None if signal_v is None else q.jitter_noise_rms(signal_v, band[1], jitter)
@@ -292,6 +310,7 @@ def _input(channel: Channel, base: AmplitudeResult) -> AmplitudeResult:
         peak_volts=peak_volts,
         processing_gain_db=pg,
         quantization_snr_db=q_snr,
+        jitter_s=jitter_used,
         jitter_snr_db=jitter_snr,
         sensor_snr_db=sensor_snr,
         total_snr_db=total_snr,

@@ -16,7 +16,8 @@ Definitions used throughout (see the README):
 - a multiplexed converter scans its channels in id order, evenly spread: slot k samples
   k / (sum of the channel rates) after slot 0;
 - a group's phase error at its band edge is the spread of the members' exact filter phases at
-  f_high, each less 2 pi f x its scan skew.
+  f_high, each plus 2 pi f x its scan skew (a channel sampled t later records a sine leading by
+  2 pi f t).
 """
 
 from __future__ import annotations
@@ -30,13 +31,28 @@ from typing import Any
 
 from ..dsp import budgets as dsp
 from ..dsp import filters, quantization
-from ..model import Channel, Clock, Converter, Filter, Group, Link, Spec, Store
+from ..model import Channel, Clock, Converter, Filter, Group, Link, Spec, Store, id_key
 from .figures import FigureValue, figure
 
 DATA_RATE = figure("data_rate_bps", "Data rate", "bit/s", "fs x C (image: frame rate x W x H x C)",
                    "IEC 60908 (fs N channels); containers from the converter")
-PAYLOAD_RATE = figure("payload_rate_bps", "Payload rate", "bit/s", "fs x N (image: frame rate x W x H x N)",
-                      "IEC 60908 (fs N channels)")
+PAYLOAD_RATE = figure("payload_rate_bps", "Payload rate (packed bits)", "bit/s",
+                      "fs x N (image: frame rate x W x H x N)", "IEC 60908 (fs N channels)")
+STATED_BASIS = figure("stated_data_rate_basis", "Which data rate the stated one matches", "",
+                      "containers (fs x C) or packed (fs x N), within 1 %; null when it matches neither",
+                      "definition")
+
+STATED_TOLERANCE = 0.01
+"""How far a figure the spec states may differ from the computed one: 1 % (relative)."""
+
+
+def stated_rate_basis(said: float, containers_bps: float, packed_bps: float) -> str | None:
+    """Which computed data rate a stated one matches within :data:`STATED_TOLERANCE`: "containers",
+    "packed" (containers first when both do), or None."""
+    for value, name in ((containers_bps, "containers"), (packed_bps, "packed")):
+        if value and abs(said - value) / value <= STATED_TOLERANCE * (1 + 1e-9):
+            return name
+    return None
 
 
 @dataclass(frozen=True)
@@ -46,9 +62,14 @@ class ChannelBudget:
     data_rate_bps: float
     payload_rate_bps: float
     lsb_volts: float | None = None  # for the stated-figure check
+    stated_data_rate_bps: float | None = None
 
     def figures(self) -> dict[str, FigureValue]:
-        return {DATA_RATE: self.data_rate_bps, PAYLOAD_RATE: self.payload_rate_bps}
+        out: dict[str, FigureValue] = {DATA_RATE: self.data_rate_bps, PAYLOAD_RATE: self.payload_rate_bps}
+        if self.stated_data_rate_bps is not None:
+            out[STATED_BASIS] = stated_rate_basis(self.stated_data_rate_bps, self.data_rate_bps,
+                                                  self.payload_rate_bps)
+        return out
 
 
 @dataclass(frozen=True)
@@ -107,8 +128,8 @@ class ClockCheck:
 class LinkBudget:
     id: str
     channels: tuple[str, ...]
-    payload_bps: float  # sum of the channels' data rates
-    load_bps: float  # payload x (1 + overhead)
+    data_rate_bps: float  # sum of the channels' data rates (samples in their containers)
+    load_bps: float  # data rate x (1 + overhead)
     capacity_bps: float
     usable_bps: float  # capacity x (1 - headroom)
     utilisation: float  # load / capacity
@@ -116,7 +137,7 @@ class LinkBudget:
     store: str | None
 
     def as_dict(self) -> dict[str, Any]:
-        return {"id": self.id, "channels": list(self.channels), "payload_bps": self.payload_bps,
+        return {"id": self.id, "channels": list(self.channels), "data_rate_bps": self.data_rate_bps,
                 "load_bps": self.load_bps, "capacity_bps": self.capacity_bps, "usable_bps": self.usable_bps,
                 "utilisation": self.utilisation, "limit": self.limit, "store": self.store}
 
@@ -199,7 +220,8 @@ def channel_budget(ch: Channel) -> ChannelBudget | None:
     container = conv.container_bits or conv.bits
     n = _samples_per_frame(ch)
     lsb = quantization.lsb(conv.full_scale.width, conv.bits) if conv.full_scale is not None else None
-    return ChannelBudget(dsp.stream_rate(conv.rate * n, container), dsp.payload_rate(conv.rate * n, conv.bits), lsb)
+    return ChannelBudget(dsp.stream_rate(conv.rate * n, container), dsp.payload_rate(conv.rate * n, conv.bits), lsb,
+                         ch.stated.data_rate_bps)
 
 
 # ---------------------------------------------------------------------- converters
@@ -275,16 +297,16 @@ def clock_checks(conv: Converter, clock: Clock, members: Sequence[Channel]) -> l
 
 def link_budget(link: Link, members: Sequence[tuple[str, ChannelBudget]]) -> LinkBudget:
     """Load of one link from the budgets of the channels routed over it (id, budget; in spec order)."""
-    payload = sum(b.data_rate_bps for _, b in members)
-    load = dsp.link_load(payload, link.overhead)
-    return LinkBudget(link.id, tuple(cid for cid, _ in members), payload, load, link.capacity_bps,
+    data_rate = sum(b.data_rate_bps for _, b in members)
+    load = dsp.link_load(data_rate, link.overhead)
+    return LinkBudget(link.id, tuple(cid for cid, _ in members), data_rate, load, link.capacity_bps,
                       dsp.usable_capacity(link.capacity_bps, link.headroom),
                       dsp.utilisation(load, link.capacity_bps), 1.0 - link.headroom, link.store)
 
 
 def store_budget(store: Store, feeding: Sequence[LinkBudget], duration: float | None) -> StoreBudget:
     """Use of one store from the links recording into it (by link id), for a recording of ``duration`` s."""
-    stream = sum(lk.payload_bps for lk in feeding)
+    stream = sum(lk.data_rate_bps for lk in feeding)
     needed = dsp.record_bytes(stream, duration) if duration is not None else None
     return StoreBudget(store.id, tuple(lk.id for lk in feeding), stream, duration, needed, store.capacity_bytes,
                        dsp.utilisation(needed, store.capacity_bytes) if needed is not None else None,
@@ -294,33 +316,39 @@ def store_budget(store: Store, feeding: Sequence[LinkBudget], duration: float | 
 # -------------------------------------------------------------------------- groups
 
 
-def _filter_zpk(filt: Filter) -> dsp.Zpk | None:
-    """Zeros, poles and gain (rad/s) of a channel's analog filter; None when order or corner is missing."""
+def member_filter(filt: Filter) -> filters.AnalogFilter | None:
+    """A member's analog filter as designed; None when its order or corner is missing (the build
+    sizes those) or its values cannot be designed."""
     if filt.order is None or filt.corner is None:
         return None
-    f = filters.design(filt.family, filt.order, filt.corner, filt.ripple_db, filt.stopband_db)
-    return (f.zeros, f.poles, f.gain)
+    try:
+        return filters.design(filt.family, filt.order, filt.corner, filt.ripple_db, filt.stopband_db)
+    except ValueError:
+        return None
 
 
 def group_timing(group: Group, members: Sequence[Channel], skews: Mapping[str, float]) -> GroupTiming:
-    """Timing of one group from its members (in spec order) and their scan skews (absent: 0 s)."""
-    known: list[tuple[Channel, dsp.Zpk | None, float]] = []
+    """Timing of one group from its members (in spec order) and their scan skews (absent: 0 s).
+
+    A member sampled t later records a sine leading by 2 pi f t (:func:`dsp.sampled_phase`), so
+    its phase is its filter's exact phase plus 2 pi f t."""
+    known: list[tuple[Channel, filters.AnalogFilter | None, float]] = []
     unknown: list[str] = []
     for ch in members:
-        zpk = _filter_zpk(ch.filter) if ch.filter is not None else None
-        if ch.signal.band is None or (ch.filter is not None and zpk is None):
+        filt = member_filter(ch.filter) if ch.filter is not None else None
+        if ch.signal.band is None or (ch.filter is not None and filt is None):
             unknown.append(ch.id)
         else:
-            known.append((ch, zpk, skews.get(ch.id, 0.0)))
+            known.append((ch, filt, skews.get(ch.id, 0.0)))
     f = max((ch.signal.band or (0.0, 0.0))[1] for ch, _, _ in known) if known else None
     phases: dict[str, float] = {}
     estimates: dict[str, float] = {}
     if f:
-        _, ref_zpk, ref_t = known[0]
-        for ch, zpk, t in known:
+        _, ref_filter, ref_t = known[0]
+        for ch, filt, t in known:
             # each member against the first: exact phase, and the DC-delay estimate of the same
-            phases[ch.id] = dsp.phase_difference(zpk, ref_zpk, f, t, ref_t)
-            estimates[ch.id] = dsp.phase_difference_dc_estimate(zpk, ref_zpk, f) - 2 * math.pi * f * (t - ref_t)
+            phases[ch.id] = dsp.phase_difference(filt, ref_filter, f, t, ref_t)
+            estimates[ch.id] = dsp.phase_difference_dc_estimate(filt, ref_filter, f, t, ref_t)
     spread = max(phases.values()) - min(phases.values()) if phases else 0.0
     dc_spread = max(estimates.values()) - min(estimates.values()) if estimates else 0.0
     return GroupTiming(group.id, tuple(ch.id for ch, _, _ in known), tuple(unknown), f, MappingProxyType(phases),
@@ -457,7 +485,7 @@ class BudgetIndex:
         groups = {g for g in matches if g is not None and g in system.groups}
         ids = {ch.id, *on_conv, *(cid for lid in links for cid in shared.links[lid]),
                *(cid for g in groups for cid in shared.groups[g])}
-        return Reach(ch.id, conv, tuple(links), link, store, tuple(sorted(groups)), tuple(sorted(ids)))
+        return Reach(ch.id, conv, tuple(links), link, store, tuple(sorted(groups)), tuple(sorted(ids, key=id_key)))
 
     def within(self, reach: Reach) -> Budgets:
         """The budgets of ``reach``'s resources as they are in the spec."""

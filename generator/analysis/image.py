@@ -38,10 +38,6 @@ MTF_DETAIL = figure("pixel_aperture_mtf_at_detail", "Full-fill pixel aperture re
 FRAME_BITS = figure("frame_bits", "Bits per frame (or line), packed", "bit", "W x H x N", "arithmetic")
 FRAME_BITS_STORED = figure("frame_bits_stored", "Bits per frame (or line) in storage containers", "bit",
                            "W x H x container_bits", "arithmetic")
-DATA_RATE = figure("image_data_rate_bps", "Image stream, packed", "bit/s", "frame_bits x frame rate",
-                   "arithmetic")
-DATA_RATE_STORED = figure("image_data_rate_stored_bps", "Image stream in storage containers", "bit/s",
-                          "frame_bits_stored x frame rate", "arithmetic")
 
 
 @dataclass(frozen=True)
@@ -60,8 +56,6 @@ class ImageResult:
     pixel_aperture_mtf_at_detail: float | None
     frame_bits: int | None
     frame_bits_stored: int | None
-    data_rate_bps: float | None
-    data_rate_stored_bps: float | None
 
     def figures(self) -> dict[str, FigureValue]:
         return {
@@ -77,8 +71,6 @@ class ImageResult:
             MTF_DETAIL: self.pixel_aperture_mtf_at_detail,
             FRAME_BITS: self.frame_bits,
             FRAME_BITS_STORED: self.frame_bits_stored,
-            DATA_RATE: self.data_rate_bps,
-            DATA_RATE_STORED: self.data_rate_stored_bps,
         }
 
 
@@ -116,6 +108,4 @@ def analyze_image(channel: Channel, system: System) -> ImageResult | None:
         pixel_aperture_mtf_at_detail=None if detail is None else dsp.box_aperture_mtf(detail, pitch),
         frame_bits=bits,
         frame_bits_stored=stored,
-        data_rate_bps=None if bits is None or rate is None else dsp.stream_rate(bits, rate),
-        data_rate_stored_bps=None if stored is None or rate is None else dsp.stream_rate(stored, rate),
     )

@@ -7,9 +7,10 @@ Sign conventions: ``zoh_droop_db`` is the hold's gain at the band top in dB (0 o
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
 
-from ..dsp import filters, quantization
+from ..dsp import filters, folding, quantization
 from ..dsp import reconstruction as rec
 from ..model import Channel, Filter, System
 from .figures import FigureValue, figure
@@ -30,8 +31,14 @@ FILTER_IMAGE = figure(
     "filter_image_attenuation_db", "Reconstruction filter's attenuation at the first image", "dB",
     "-20 log10 |H(j 2 pi (fs - f_high))|", "scipy.signal analog prototype; Williams & Taylor")
 IMAGE_REJECTION = figure(
-    "image_rejection_db", "First image below the tone, hold and filter together", "dB",
-    "hold_image_attenuation + filter_image_attenuation", "ADI MT-017")
+    "image_rejection_db", "Image rejection (least, over every image of every tone in the band)", "dB",
+    "min over k >= 1 and 0 < f <= f_high of 20 log10(g / f) (hold; 0 without) + A(g), images g = k fs +/- f",
+    "ADI MT-017; Oppenheim & Schafer ch. 4")
+IMAGE_WORST = figure(
+    "image_worst_hz", "Where the least image rejection lies", "Hz",
+    "the image g of the minimum above; null when it is the limit as g grows without bound", "ADI MT-017")
+IMAGE_TONE = figure(
+    "image_worst_tone_hz", "The in-band tone whose image that is", "Hz", "|g - k fs|", "ADI MT-017")
 REQUIRED_IMAGE = figure(
     "required_image_rejection_db", "Required suppression of the first image", "dB",
     "[signal] image_rejection, else the DAC's floor 20 log10(2^N sqrt(1.5)) = 6.02 N + 1.76", "ADI MT-001")
@@ -42,8 +49,12 @@ FILTER_DROOP = figure(
     "filter_droop_db", "Reconstruction filter's loss at the band top", "dB",
     "-20 log10 |H(j 2 pi f_high)|", "scipy.signal analog prototype; Williams & Taylor")
 PASSBAND_ERROR = figure(
-    "passband_error_db", "Output loss at the band top, hold and filter together", "dB",
-    "-zoh_droop + filter_droop", "ADI MT-017")
+    "passband_error_db", "Largest output loss inside the band, hold and filter together", "dB",
+    "max over f_low <= f <= f_high of -20 log10 |sinc(f / fs)| (0 with sinc_compensation or no hold) + A(f)",
+    "ADI MT-017")
+PASSBAND_ERROR_AT = figure(
+    "passband_error_at_hz", "Where the largest output loss inside the band lies", "Hz", "argmax of the above",
+    "ADI MT-017")
 OUTPUT_PEAK = figure(
     "output_peak_volts", "Largest drive the output can produce", "V",
     "full-scale peak x gain", "definition")
@@ -61,10 +72,13 @@ class OutputResult:
     hold_image_attenuation_db: float
     filter_image_attenuation_db: float | None  # None: no designed filter (treated as 0 dB)
     image_rejection_db: float
+    image_worst_hz: float  # math.inf: the limit as the image frequency grows
+    image_worst_tone_hz: float
     required_image_rejection_db: float | None
     filter_needed_at_image_db: float | None
     filter_droop_db: float | None
     passband_error_db: float
+    passband_error_at_hz: float
     flatness_db: float
     output_peak_volts: float | None
     stages: list[dict[str, float | None]] | None = None  # the reconstruction filter's cascade
@@ -77,30 +91,42 @@ class OutputResult:
             HOLD_IMAGE: self.hold_image_attenuation_db,
             FILTER_IMAGE: self.filter_image_attenuation_db,
             IMAGE_REJECTION: self.image_rejection_db,
+            IMAGE_WORST: self.image_worst_hz if math.isfinite(self.image_worst_hz) else None,
+            IMAGE_TONE: self.image_worst_tone_hz,
             REQUIRED_IMAGE: self.required_image_rejection_db,
             FILTER_NEEDED: self.filter_needed_at_image_db,
             FILTER_DROOP: self.filter_droop_db,
             PASSBAND_ERROR: self.passband_error_db,
+            PASSBAND_ERROR_AT: self.passband_error_at_hz,
             OUTPUT_PEAK: self.output_peak_volts,
             STAGES: self.stages,
         }
 
 
-def filter_loss_db(filt: Filter | None, f_hz: float) -> float | None:
-    """Loss of a channel's reconstruction filter at ``f_hz``; None when no filter is designed."""
+def designed_filter(filt: Filter | None) -> filters.AnalogFilter | None:
+    """An output's reconstruction filter as designed; None without one, or without an order and a
+    corner (an output's filter is never sized for it), or when its values cannot be designed."""
     if filt is None or filt.order is None or filt.corner is None:
         return None
-    return float(filters.attenuation_db(
-        filters.design(filt.family, filt.order, filt.corner, filt.ripple_db, filt.stopband_db), f_hz))
+    try:
+        return filters.design(filt.family, filt.order, filt.corner, filt.ripple_db, filt.stopband_db)
+    except ValueError:
+        return None
+
+
+def filter_loss_db(filt: Filter | None, f_hz: float) -> float | None:
+    """Loss of a channel's reconstruction filter at ``f_hz``; None when no filter is designed."""
+    designed = designed_filter(filt)
+    return None if designed is None else float(filters.attenuation_db(designed, f_hz))
 
 
 def image_rejection_at(channel: Channel, rate_hz: float) -> float:
-    """Image rejection (hold + filter, dB) the channel would have at ``rate_hz``; for the rule's fix."""
+    """Image rejection (hold + filter, dB, least over every image) the channel would have at
+    ``rate_hz``; for the rule's fix."""
     assert channel.signal.band is not None
-    f_high = channel.signal.band[1]
-    hold = rec.hold_image_attenuation_db(f_high, rate_hz) if channel.conversion.hold == "zero-order" else 0.0
-    loss = filter_loss_db(channel.filter, rate_hz - f_high)
-    return hold + (loss or 0.0)
+    got = folding.image_rejection(designed_filter(channel.filter), rate_hz, channel.signal.band[1],
+                                  channel.conversion.hold == "zero-order")
+    return got.db
 
 
 def analyze_output(channel: Channel, system: System) -> OutputResult | None:
@@ -110,14 +136,17 @@ def analyze_output(channel: Channel, system: System) -> OutputResult | None:
     rate = conv.rate
     if channel.kind != "output" or band is None or rate is None or not 0.0 < band[1] < rate:
         return None
-    f_high = band[1]
+    f_low, f_high = band
     zero_order = conv.hold == "zero-order"
     raw = rec.hold_droop_db(f_high, rate) if zero_order else None
     droop = (rec.compensated_droop_db(f_high, rate) if conv.sinc_compensation else raw) if zero_order else None
     hold_image = rec.hold_image_attenuation_db(f_high, rate) if zero_order else 0.0
     first = rec.first_image(f_high, rate)
+    designed = designed_filter(channel.filter)
     filt_image = filter_loss_db(channel.filter, first)
     filt_droop = filter_loss_db(channel.filter, f_high)
+    images = folding.image_rejection(designed, rate, f_high, zero_order)
+    passband = rec.largest_passband_loss(designed, rate, f_low, f_high, zero_order and not conv.sinc_compensation)
     required = channel.signal.image_rejection_db
     if required is None and conv.bits is not None:
         required = quantization.sqnr_db(conv.bits)
@@ -133,11 +162,14 @@ def analyze_output(channel: Channel, system: System) -> OutputResult | None:
         first_image_hz=first,
         hold_image_attenuation_db=hold_image,
         filter_image_attenuation_db=filt_image,
-        image_rejection_db=hold_image + (filt_image or 0.0),
+        image_rejection_db=images.db,
+        image_worst_hz=images.image_hz,
+        image_worst_tone_hz=images.tone_hz,
         required_image_rejection_db=required,
         filter_needed_at_image_db=needed,
         filter_droop_db=filt_droop,
-        passband_error_db=-(droop or 0.0) + (filt_droop or 0.0),
+        passband_error_db=passband.loss_db,
+        passband_error_at_hz=passband.frequency_hz,
         flatness_db=channel.signal.flatness_db,
         output_peak_volts=peak,
         stages=_stages(channel.filter),

@@ -24,7 +24,7 @@ from dataclasses import dataclass, field, replace
 from typing import Any
 
 from ..dsp import filters as flt
-from ..dsp import quantization
+from ..dsp import folding, quantization
 from ..dsp import sampling as dsp
 from ..model import Channel, Converter, System, Tone
 from .figures import FigureValue, figure
@@ -33,7 +33,7 @@ SAMPLE_RATE = figure("sample_rate_hz", "Sample rate", "Hz", "fs", "as specified 
 NYQUIST = figure("nyquist_hz", "Nyquist frequency", "Hz", "f_N = fs / 2", "Shannon 1949; Nyquist 1928")
 BAND_LOW = figure("band_low_hz", "Band, low edge", "Hz", "as specified", "requirement")
 BAND_HIGH = figure("band_high_hz", "Band, high edge", "Hz", "f_high, as specified", "requirement")
-OSR = figure("oversampling_ratio", "Oversampling ratio", "", "OSR = fs / (2 f_high)", "ADI MT-002")
+OSR = figure("rate_over_nyquist", "Rate over the band's Nyquist rate", "", "fs / (2 f_high)", "ADI MT-002")
 FIRST_ALIAS = figure("first_alias_hz", "First alias onto the band top", "Hz", "fs - f_high", "ADI MT-002")
 
 FILTER = figure("anti_alias_filter", "Anti-aliasing filter", "",
@@ -42,9 +42,21 @@ FILTER = figure("anti_alias_filter", "Anti-aliasing filter", "",
                 "as specified; sized by specfold when only the family is given")
 DROOP = figure("band_edge_droop_db", "Filter loss at the band top", "dB", "A(f_high) = -20 log10 |H(j 2 pi f_high)|",
                "Williams & Taylor; scipy.signal analog prototypes")
-ALIAS_REJECTION = figure("alias_rejection_db", "Alias rejection", "dB",
-                         "min(A_analog(fs - f_high) + A_digital(fs - f_high), A_analog(f_mod - f_high))",
-                         "ADI MT-002; delta-sigma decimation filter from system.toml")
+PASSBAND_LOSS = figure("passband_loss_db", "Largest filter loss inside the band", "dB",
+                       "max A(f) for f_low <= f <= f_high (ripple troughs, the DC loss of even-order ripple "
+                       "families, the band top)", "Williams & Taylor; scipy.signal analog prototypes")
+PASSBAND_LOSS_AT = figure("passband_loss_at_hz", "Where the largest loss inside the band lies", "Hz",
+                          "argmax A(f), f_low <= f <= f_high", "Williams & Taylor")
+ALIAS_REJECTION = figure("alias_rejection_db", "Alias rejection (least, over every band that folds onto the band)",
+                         "dB", "min over f in k fs - f_high .. k fs + f_high (k >= 1) of A_analog(f) + A_digital(f); "
+                         "A_digital = 0 within the decimation filter's stopband edge of a multiple of f_mod",
+                         "Oppenheim & Schafer ch. 4; ADI MT-002; decimation filter from system.toml")
+ALIAS_WORST = figure("alias_worst_hz", "Where the least alias rejection lies", "Hz",
+                     "argmin of the above; null when it is the limit as f grows without bound "
+                     "(even-order chebyshev2 and elliptic filters)", "Oppenheim & Schafer ch. 4")
+ALIAS_ZONE = figure("alias_worst_band", "Kind of band the least alias rejection lies in", "",
+                    "fold (k fs +/- f_high) | transition (the decimation filter's transition band) | "
+                    "modulator (near a multiple of f_mod)", "ADI MT-002")
 ALIAS_SOURCE = figure("alias_rejection_source", "What sets the alias rejection", "",
                       "analog filter | digital decimation filter | none", "specfold")
 FILTER_ALIAS = figure("filter_rejection_at_first_alias_db", "Analog filter loss at the first alias", "dB",
@@ -54,7 +66,8 @@ GD_DC = figure("group_delay_dc_s", "Filter group delay at DC", "s", "tau(0) = su
 GD_EDGE = figure("group_delay_band_edge_s", "Filter group delay at the band top", "s",
                  "tau(w) = sum -s_p / ((w - w_p)^2 + s_p^2)", "from the pole positions; Williams & Taylor")
 PEAK_DBFS = figure("peak_level_dbfs", "Signal peak at the converter", "dBFS",
-                   "20 log10(peak x sensitivity x gain / full-scale peak)", "AES17 (sine-referenced dBFS)")
+                   "20 log10(peak x sensitivity x gain / full-scale amplitude), full-scale amplitude = "
+                   "(high - low) / 2", "AES17 (sine-referenced dBFS)")
 FLOOR = figure("alias_floor_dbfs", "Floor that aliases must stay under", "dBFS",
                "min(peak, 0 dBFS) - snr; else -(6.0206 N + 1.7609)", "ADI MT-001, MT-002")
 REQUIRED = figure("required_alias_rejection_db", "Alias rejection required", "dB",
@@ -62,14 +75,15 @@ REQUIRED = figure("required_alias_rejection_db", "Alias rejection required", "dB
 STOP_EDGE = figure("filter_stop_edge_hz", "Frequency the analog filter must reject at", "Hz",
                    "fs - f_high; on delta-sigma: f_mod - f_high", "ADI MT-002")
 MIN_ORDER = figure("min_filter_order", "Least filter order per family", "",
-                   "least n with A(f_high) <= flatness and A(stop edge) >= required; null above 20",
-                   "scipy.signal buttord/cheb1ord/cheb2ord/ellipord (analog=True); bessel by search")
+                   "least n whose design, cornered to lose exactly the flatness at f_high, gives an alias "
+                   "rejection (as above) >= required; null above 20",
+                   "starts from scipy.signal buttord/cheb1ord/cheb2ord/ellipord (analog=True); bessel by search")
 MOD_RATE = figure("modulator_rate_hz", "Delta-sigma modulator rate", "Hz", "f_mod (or the least OSR x fs)",
                   "system.toml")
 MOD_ALIAS = figure("modulator_alias_hz", "First analog alias through the modulator", "Hz", "f_mod - f_high",
                    "derived from the sampling theorem")
-MOD_REJECTION = figure("modulator_alias_rejection_db", "Analog filter loss at the modulator alias", "dB",
-                       "A_analog(f_mod - f_high)", "Williams & Taylor")
+MOD_REJECTION = figure("modulator_alias_rejection_db", "Analog filter loss over the modulator's alias bands", "dB",
+                       "min A_analog(f) within the decimation stopband edge of m f_mod, m >= 1", "Williams & Taylor")
 DIG_PASS = figure("digital_passband_hz", "Decimation filter passband edge", "Hz", "passband x fs", "system.toml")
 DIG_STOP = figure("digital_stopband_hz", "Decimation filter stopband edge", "Hz", "stopband x fs", "system.toml")
 DIG_REJECTION = figure("digital_rejection_db", "Decimation filter stopband rejection", "dB", "as specified",
@@ -82,25 +96,10 @@ TONES = figure("interference_folds", "Where each declared tone lands", "",
                "f_a = |f - fs round(f / fs)|, zone = floor(2 f / fs) + 1, landed = level - A(f)",
                "Oppenheim & Schafer ch. 4; ADI MT-002")
 
-ANALOG = "analog filter"
-DIGITAL = "digital decimation filter"
-NONE = "none"
-
-
-@dataclass(frozen=True)
-class DecimationFilter:
-    """The digital filter of a delta-sigma converter, in Hz at the channel's rate."""
-
-    modulator_rate_hz: float | None
-    passband_hz: float
-    stopband_hz: float
-    rejection_db: float
-
-    def attenuation_db(self, f_hz: float) -> float:
-        """Stopband rejection where guaranteed, else 0 dB (passband and unspecified transition band)."""
-        period = self.modulator_rate_hz if self.modulator_rate_hz else math.inf
-        region = dsp.digital_filter_region(f_hz, period, self.passband_hz, self.stopband_hz)
-        return self.rejection_db if region == "stop" else 0.0
+ANALOG = folding.ANALOG
+DIGITAL = folding.DIGITAL
+NONE = folding.NONE
+DecimationFilter = folding.Decimation
 
 
 @dataclass(frozen=True)
@@ -151,7 +150,7 @@ class SamplingResult:
     band_low_hz: float
     band_high_hz: float
     nyquist_hz: float
-    oversampling_ratio: float
+    rate_over_nyquist: float
     first_alias_hz: float
     kind: str = "input"
     architecture: str = ""
@@ -163,10 +162,13 @@ class SamplingResult:
     decimation: DecimationFilter | None = None
     delta_sigma: bool = False
     band_edge_droop_db: float | None = None
+    passband_loss_db: float | None = None
+    passband_loss_at_hz: float | None = None
     filter_rejection_at_first_alias_db: float | None = None
     alias_rejection_db: float | None = None
+    alias_worst_hz: float | None = None  # math.inf: the limit as f grows without bound
+    alias_worst_band: str = folding.FOLD
     alias_rejection_source: str = NONE
-    near_rate_rejection_db: float | None = None  # at fs - f_high, everything counted
     modulator_alias_hz: float | None = None
     modulator_alias_rejection_db: float | None = None
     group_delay_dc_s: float | None = None
@@ -188,7 +190,7 @@ class SamplingResult:
             NYQUIST: self.nyquist_hz,
             BAND_LOW: self.band_low_hz,
             BAND_HIGH: self.band_high_hz,
-            OSR: self.oversampling_ratio,
+            OSR: self.rate_over_nyquist,
             FIRST_ALIAS: self.first_alias_hz,
         }
         if not self.has_input_figures:
@@ -200,8 +202,12 @@ class SamplingResult:
         }
         out[STAGES] = None if f is None else stage_list(f)
         out[DROOP] = self.band_edge_droop_db
+        out[PASSBAND_LOSS] = self.passband_loss_db
+        out[PASSBAND_LOSS_AT] = self.passband_loss_at_hz
         out[FILTER_ALIAS] = self.filter_rejection_at_first_alias_db
         out[ALIAS_REJECTION] = self.alias_rejection_db
+        out[ALIAS_WORST] = _finite(self.alias_worst_hz)
+        out[ALIAS_ZONE] = None if self.alias_rejection_db is None else self.alias_worst_band
         out[ALIAS_SOURCE] = self.alias_rejection_source
         out[GD_DC] = self.group_delay_dc_s
         out[GD_EDGE] = self.group_delay_band_edge_s
@@ -230,6 +236,11 @@ class SamplingResult:
         return min(found, key=lambda d: (d.order, flt.FAMILIES.index(d.family))) if found else None
 
 
+def _finite(value: float | None) -> float | None:
+    """A figure that may be infinite (the limit as f grows without bound) as JSON has it: null."""
+    return value if value is not None and math.isfinite(value) else None
+
+
 def stage_list(filt: flt.AnalogFilter) -> list[dict[str, float | None]]:
     """The filter's cascade as JSON objects: {f0_hz, q} per stage, ascending Q (q None: first order).
 
@@ -254,10 +265,16 @@ def _decimation(conv: Converter | None, rate: float) -> DecimationFilter | None:
         return None
     if conv.passband is None or conv.stopband is None or conv.stopband_rejection_db is None:
         return None
-    f_mod = conv.modulator_rate
-    if f_mod is None and conv.oversampling_ratios:
-        f_mod = min(conv.oversampling_ratios) * rate  # the least ratio is the worst case
-    return DecimationFilter(f_mod, conv.passband * rate, conv.stopband * rate, conv.stopband_rejection_db)
+    return DecimationFilter(modulator_rate(conv, rate), conv.passband * rate, conv.stopband * rate,
+                            conv.stopband_rejection_db)
+
+
+def modulator_rate(conv: Converter, rate: float) -> float | None:
+    """The converter's modulator rate, else the least oversampling ratio x fs (the worst case: its
+    aliases lie nearest the band); None when neither is given."""
+    if conv.modulator_rate is not None:
+        return conv.modulator_rate
+    return min(conv.oversampling_ratios) * rate if conv.oversampling_ratios else None
 
 
 def _volts_at_converter(channel: Channel, value: float, dim: str) -> float | None:
@@ -276,9 +293,9 @@ def _dbfs(channel: Channel, value: float, dim: str) -> float | None:
         return value
     fs = channel.conversion.full_scale
     volts = _volts_at_converter(channel, value, dim)
-    if volts is None or fs is None or fs.peak <= 0:
+    if volts is None or fs is None or fs.amplitude <= 0:
         return None
-    return dsp.level_dbfs(abs(volts), fs.peak)
+    return dsp.level_dbfs(abs(volts), fs.amplitude)
 
 
 def _floor(channel: Channel, peak_dbfs: float | None) -> float | None:
@@ -289,12 +306,58 @@ def _floor(channel: Channel, peak_dbfs: float | None) -> float | None:
     return -quantization.sqnr_db(bits) if bits is not None else None
 
 
-def _least_orders(f_pass: float, f_stop: float | None, flatness: float,
-                  required: float | None) -> dict[str, flt.OrderDesign | None]:
-    if f_stop is None or required is None or not f_stop > f_pass:
+def _order_masks(rate: float, high: float, stop: float, dec: DecimationFilter | None,
+                 delta_sigma: bool) -> list[tuple[float, float]]:
+    """(stop edge, loss needed there) pairs every compliant filter must meet: a necessary
+    condition of :func:`folding.alias_rejection`, so the least order of each is a lower bound."""
+    masks = []
+    if not delta_sigma or dec is None:
+        masks.append((rate - high, stop))
+        return [(edge, need) for edge, need in masks if edge > high * (1 + 1e-12)]
+    if dec.modulator_rate_hz:
+        masks.append((dec.modulator_rate_hz - high, stop))
+    if rate - high < dec.stopband_hz:  # the first alias falls in the decimation filter's transition band
+        masks.append((rate - high, stop))
+    elif stop - dec.rejection_db > 0:  # the decimation filter alone is not enough near fs
+        masks.append((rate - high, stop - dec.rejection_db))
+    return [(edge, need) for edge, need in masks if edge > high * (1 + 1e-12)]
+
+
+def least_orders(rate: float, high: float, flatness: float, required: float | None,
+                 dec: DecimationFilter | None = None, delta_sigma: bool = False) -> dict[str, flt.OrderDesign | None]:
+    """Least order per family whose design, cornered to lose exactly ``flatness`` at ``high``
+    (the family's own corner rule, :func:`generator.dsp.filters.least_order`), gives an alias
+    rejection (:func:`generator.dsp.folding.alias_rejection`, the very figure the channel reports)
+    of at least ``required``; None for a family that needs more than 20 poles.
+
+    Starts from the largest classical least order over the masks every compliant filter must
+    meet (:func:`_order_masks`; exact on its own for a converter without a decimation filter,
+    where fs - f_high is the only edge) and steps up until the rejection holds.
+    """
+    if required is None or not rate >= 2 * high or not high > 0:
         return {}
     stop = max(required, flatness + 0.01)  # a requirement below the flatness is met by any order
-    return {fam: flt.least_order(fam, f_pass, f_stop, flatness, stop) for fam in flt.FAMILIES}
+    masks = _order_masks(rate, high, stop, dec, delta_sigma)
+    if not masks:
+        return {}
+    out: dict[str, flt.OrderDesign | None] = {}
+    for fam in flt.FAMILIES:
+        starts = [flt.least_order(fam, high, edge, flatness, need) for edge, need in masks]
+        if any(d is None for d in starts):
+            out[fam] = None
+            continue
+        first = max((d for d in starts if d is not None), key=lambda d: d.order)
+        if len(masks) == 1 and (dec is None or not delta_sigma):
+            out[fam] = first  # one edge, one classical mask: exact
+            continue
+        found = None
+        for n in range(first.order, flt.MAX_ORDER + 1):
+            d = flt.design_for_flatness(fam, n, high, flatness, stop)
+            if d is not None and folding.alias_rejection(d.as_filter(), rate, high, dec).db >= stop - 1e-9:
+                found = d
+                break
+        out[fam] = found
+    return out
 
 
 def _design(channel: Channel, least: dict[str, flt.OrderDesign | None]) -> tuple[flt.AnalogFilter | None, bool, str]:
@@ -346,7 +409,7 @@ def analyze_sampling(channel: Channel, system: System) -> SamplingResult | None:
         band_low_hz=low,
         band_high_hz=high,
         nyquist_hz=dsp.nyquist_frequency(rate),
-        oversampling_ratio=dsp.oversampling_ratio(rate, high),
+        rate_over_nyquist=dsp.rate_over_nyquist(rate, high),
         first_alias_hz=dsp.first_alias(rate, high),
         kind=channel.kind,
     )
@@ -363,31 +426,19 @@ def analyze_sampling(channel: Channel, system: System) -> SamplingResult | None:
     floor = _floor(channel, peak_dbfs)
     required = max(sig.out_of_band_dbfs - floor, 0.0) if floor is not None else None
 
-    first_alias = rate - high
-    if delta_sigma:
-        stop_edge = dec.modulator_rate_hz - high if dec is not None and dec.modulator_rate_hz else None
-    else:
-        stop_edge = first_alias
-    least = _least_orders(high, stop_edge, sig.flatness_db, required)
+    f_mod = modulator_rate(conv, rate) if conv is not None and delta_sigma else None
+    least = least_orders(rate, high, sig.flatness_db, required, dec, delta_sigma)
     filt, proposed, problem = _design(channel, least)
 
-    droop = flt.attenuation_db(filt, high) if filt is not None else 0.0
-    analog_first = flt.attenuation_db(filt, abs(first_alias)) if filt is not None else 0.0
-    mod_alias = mod_rejection = None
-    if dec is not None:
-        near = analog_first + dec.attenuation_db(abs(first_alias))
-        if dec.modulator_rate_hz:
-            mod_alias = dec.modulator_rate_hz - high
-            if filt is not None:
-                mod_rejection = flt.attenuation_db(filt, mod_alias)
-        if mod_rejection is not None and mod_rejection < near:
-            rejection, source = mod_rejection, ANALOG
-        else:
-            rejection, source = near, DIGITAL
+    # Below Nyquist the band folds onto itself (below-nyquist says so) and no rejection figure means anything.
+    sampled = rate >= 2 * high * (1 - 1e-9)
+    rejection = folding.alias_rejection(filt, rate, high, dec, None if dec is not None else f_mod) if sampled else None
+    through = folding.modulator_alias_rejection(filt, rate, high, dec) if dec is not None and sampled else None
+    passband = flt.largest_loss_between(filt, low, high) if filt is not None else None
+    if delta_sigma and dec is not None:
+        stop_edge = rate - high if rate - high < dec.stopband_hz else (f_mod - high if f_mod else None)
     else:
-        near = analog_first
-        rejection, source = analog_first, (ANALOG if filt is not None else NONE)
-
+        stop_edge = rate - high
     return replace(
         base,
         architecture=conv.architecture if conv is not None else "",
@@ -398,13 +449,16 @@ def analyze_sampling(channel: Channel, system: System) -> SamplingResult | None:
         filter_problem=problem,
         decimation=dec,
         delta_sigma=delta_sigma,
-        band_edge_droop_db=droop,
-        filter_rejection_at_first_alias_db=analog_first if filt is not None else None,
-        alias_rejection_db=rejection,
-        alias_rejection_source=source,
-        near_rate_rejection_db=near,
-        modulator_alias_hz=mod_alias,
-        modulator_alias_rejection_db=mod_rejection,
+        band_edge_droop_db=flt.attenuation_db(filt, high) if filt is not None else 0.0,
+        passband_loss_db=passband.loss_db if passband is not None else 0.0,
+        passband_loss_at_hz=passband.frequency_hz if passband is not None else None,
+        filter_rejection_at_first_alias_db=flt.attenuation_db(filt, rate - high) if filt is not None else None,
+        alias_rejection_db=rejection.db if rejection is not None else None,
+        alias_worst_hz=rejection.frequency_hz if rejection is not None else None,
+        alias_worst_band=rejection.zone if rejection is not None else folding.FOLD,
+        alias_rejection_source=rejection.source if rejection is not None else NONE,
+        modulator_alias_hz=f_mod - high if f_mod else None,
+        modulator_alias_rejection_db=through.loss_db if through is not None else None,
         group_delay_dc_s=flt.group_delay_s(filt, 0.0) if filt is not None else None,
         group_delay_band_edge_s=flt.group_delay_s(filt, high) if filt is not None else None,
         peak_dbfs=peak_dbfs,

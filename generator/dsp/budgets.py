@@ -9,22 +9,18 @@ References
            neighbouring slots are 1 / (aggregate rate) apart; a delta-sigma modulator clock is an
            integer division of the master clock (MCLK / N), and the output rate is the modulator
            rate over an integer oversampling ratio.
-[WT]       Williams & Taylor, *Electronic Filter Design Handbook*: phase of a rational transfer
-           function, phi(w) = arg k + sum arg(jw - z_i) - sum arg(jw - p_i); group delay
-           tau(w) = -dphi/dw = sum -s_i / ((w - w_i)^2 + s_i^2) over poles s_i + j w_i, minus the
-           same sum over zeros.
+[WT]       Williams & Taylor, *Electronic Filter Design Handbook*: phase and group delay of a
+           rational transfer function (computed in :mod:`generator.dsp.filters`).
 [1241]     IEEE Std 1241-2010; W. Kester, Analog Devices MT-001: LSB = FSR / 2^N.
 """
 
 from __future__ import annotations
 
-import cmath
 import math
 from collections.abc import Sequence
 
-# An analog filter as zeros, poles (rad/s, complex) and gain: the shape scipy.signal returns
-# with output='zpk', analog=True.
-Zpk = tuple[Sequence[complex], Sequence[complex], float]
+from . import filters
+from .filters import AnalogFilter
 
 BITS_PER_BYTE = 8
 
@@ -52,9 +48,9 @@ def container_overhead(bits: int, container_bits: int) -> float:
     return (container_bits - bits) / bits
 
 
-def link_load(payload_bps: float, overhead: float) -> float:
-    """Bits per second on the wire: payload x (1 + overhead), overhead a ratio (8 % -> 0.08) [DER]."""
-    return payload_bps * (1.0 + overhead)
+def link_load(data_rate_bps: float, overhead: float) -> float:
+    """Bits per second on the wire: data rate x (1 + overhead), overhead a ratio (8 % -> 0.08) [DER]."""
+    return data_rate_bps * (1.0 + overhead)
 
 
 def usable_capacity(capacity: float, headroom: float) -> float:
@@ -133,60 +129,34 @@ def holding_time(capacity_bytes: float, stream_bps: float) -> float:
     return capacity_bytes * BITS_PER_BYTE / stream_bps
 
 
-def phase_response(zpk: Zpk, f_hz: float) -> float:
-    """Continuous (unwrapped) phase of an analog filter at ``f_hz``, radians [WT].
+def sampled_phase(filt: AnalogFilter | None, f_hz: float, delay_s: float = 0.0) -> float:
+    """Phase, in radians, at which a channel records a sine at ``f_hz``: its filter's exact phase
+    (:func:`generator.dsp.filters.phase_rad`; none: 0) plus 2 pi f t for a channel sampled t
+    seconds after the reference instant [WT], [DER].
 
-    phi(w) = arg k + sum_i arg(jw - z_i) - sum_i arg(jw - p_i), w = 2 pi f.  For poles in the
-    left half plane each term stays inside (-pi/2, pi/2) as w rises from 0, so the sum is the
-    unwrapped phase that starts at arg k at DC; a zero on the j axis adds its true jump of pi
-    only above the zero (beyond any passband edge this is used at).
+    Sampling t later reads x(nT + t) = sin(2 pi f (nT + t) + phi): the recorded sine *leads* by
+    2 pi f t, so a later slot of a multiplexer scan cancels part of a filter's lag, it does not
+    add to it.
     """
-    zeros, poles, gain = zpk
-    jw = 1j * 2.0 * math.pi * f_hz
-    phi = 0.0 if gain >= 0 else math.pi
-    for z in zeros:
-        phi += _arg_from(jw, complex(z))
-    for p in poles:
-        phi -= _arg_from(jw, complex(p))
-    return phi
+    phi = float(filters.phase_rad(filt, f_hz)) if filt is not None else 0.0
+    return phi + 2.0 * math.pi * f_hz * delay_s
 
 
-def _arg_from(jw: complex, root: complex) -> float:
-    # arg(jw - r) measured so that a left-half-plane root gives a term in (-pi/2, pi/2)
-    d = jw - root
-    if d.real >= 0.0:
-        return cmath.phase(d)
-    # right-half-plane or j-axis root above w: fold into a continuous branch
-    return math.atan(d.imag / d.real) if d.real != 0.0 else math.copysign(math.pi / 2, d.imag)
-
-
-def group_delay_dc(zpk: Zpk) -> float:
-    """Group delay at DC, tau(0) = sum_p -s_p / |p|^2 - sum_z -s_z / |z|^2 over real parts s, seconds [WT]."""
-    zeros, poles, _ = zpk
-    tau = sum(-complex(p).real / abs(complex(p)) ** 2 for p in poles)
-    tau -= sum(-complex(z).real / abs(complex(z)) ** 2 for z in zeros if abs(complex(z)) > 0)
-    return tau
-
-
-def phase_difference(a: Zpk | None, b: Zpk | None, f_hz: float, delay_a_s: float = 0.0,
+def phase_difference(a: AnalogFilter | None, b: AnalogFilter | None, f_hz: float, delay_a_s: float = 0.0,
                      delay_b_s: float = 0.0) -> float:
-    """Phase of channel a minus channel b at ``f_hz``, radians [WT], [CP].
-
-    Each channel's phase is its filter's exact phase (none: 0) minus 2 pi f t for a sampling
-    delay t (multiplexer scan skew): dphi = (phi_a - 2 pi f t_a) - (phi_b - 2 pi f t_b).
-    """
-    w = 2.0 * math.pi * f_hz
-    pa = (phase_response(a, f_hz) if a is not None else 0.0) - w * delay_a_s
-    pb = (phase_response(b, f_hz) if b is not None else 0.0) - w * delay_b_s
-    return pa - pb
+    """Phase of channel a minus channel b at ``f_hz``, radians: (phi_a + 2 pi f t_a) -
+    (phi_b + 2 pi f t_b), each from :func:`sampled_phase` [WT], [DER]."""
+    return sampled_phase(a, f_hz, delay_a_s) - sampled_phase(b, f_hz, delay_b_s)
 
 
-def phase_difference_dc_estimate(a: Zpk | None, b: Zpk | None, f_hz: float) -> float:
-    """The DC-delay estimate of the same difference: -2 pi f (tau_a(0) - tau_b(0)), radians [WT].
+def phase_difference_dc_estimate(a: AnalogFilter | None, b: AnalogFilter | None, f_hz: float,
+                                 delay_a_s: float = 0.0, delay_b_s: float = 0.0) -> float:
+    """The DC-delay estimate of the same difference: -2 pi f ((tau_a(0) - t_a) - (tau_b(0) - t_b)),
+    radians [WT].
 
     Exact only where both delays are flat; it under-reads near the corner of a filter whose
     delay peaks there (Butterworth, Chebyshev).
     """
-    ta = group_delay_dc(a) if a is not None else 0.0
-    tb = group_delay_dc(b) if b is not None else 0.0
-    return -2.0 * math.pi * f_hz * (ta - tb)
+    ta = float(filters.group_delay_s(a, 0.0)) if a is not None else 0.0
+    tb = float(filters.group_delay_s(b, 0.0)) if b is not None else 0.0
+    return -2.0 * math.pi * f_hz * ((ta - delay_a_s) - (tb - delay_b_s))

@@ -28,6 +28,9 @@ References
 [A&S] M. Abramowitz, I. A. Stegun, *Handbook of Mathematical Functions*, 17.6 (the AGM and K(m)).
 [SCIPY] scipy.signal: butter, bessel, cheby1, cheby2, ellip, buttord, cheb1ord, cheb2ord,
       ellipord (analog=True).
+[OS]  A. V. Oppenheim, R. W. Schafer, *Discrete-Time Signal Processing*, ch. 4: content at
+      k fs +/- f is indistinguishable from f after sampling.
+[DER] derived here from the definitions above.
 """
 
 from __future__ import annotations
@@ -467,6 +470,204 @@ def least_order(
     ripple = float(pass_loss_db) if family in ("chebyshev1", "elliptic") else 0.1
     stop = float(stop_atten_db) if family in ("chebyshev2", "elliptic") else 80.0
     return OrderDesign(family, n, corner * f_pass_hz, ripple, stop)
+
+
+# ------------------------------------------------------------------ least loss over fold bands
+
+
+@dataclass(frozen=True)
+class Shape:
+    """A prototype's loss curve cut into monotone pieces (corner at x = 1).
+
+    ``x`` holds 0 and every point where the loss turns (the roots of d/dx ln|H(jx)|: passband
+    ripple peaks and troughs, stopband ripple troughs) or is infinite (a transmission zero on
+    the imaginary axis), ascending; ``loss`` the loss at each; ``limit`` the loss as x grows
+    without bound (``MAX_ATTENUATION_DB`` when the filter has more poles than zeros, else
+    -20 log10 k, the stopband floor of an even-order chebyshev2 or elliptic).  Between two
+    neighbours of ``x``, and from the last one on, the loss is monotonic.
+    """
+
+    x: tuple[float, ...]
+    loss: tuple[float, ...]
+    limit: float
+
+
+@dataclass(frozen=True)
+class LossAt:
+    """A filter's loss over a set of frequencies at its least (or largest), and the frequency where
+    it lies (``math.inf`` when the least value is the limit approached as f grows without bound)."""
+
+    loss_db: float
+    frequency_hz: float
+
+
+def _slope_over_x(z: NDArray[np.complex128], p: NDArray[np.complex128], x: NDArray[np.float64]) -> NDArray[np.float64]:
+    """(d/dx ln|H(jx)|) / x, whose sign is the sign of the slope of the gain for x > 0.
+
+    Each root r = a + jb with b >= 0 stands for itself and its conjugate: from
+    |jx - r|^2 = a^2 + (x - b)^2, a conjugate pair contributes 2 x (x^2 + a^2 - b^2) /
+    ((a^2 + (x - b)^2)(a^2 + (x + b)^2)) to d/dx ln|jx - r||jx - r*|, a real root x / (a^2 + x^2)
+    [DER].  Divided by x, these keep their precision where the slope itself is vanishingly small
+    (far below the corner), so rounding cannot fake a turning point; zeros add, poles subtract;
+    infinite at a zero on the axis.
+    """
+    xv = x[:, None]
+
+    def part(roots: NDArray[np.complex128]) -> NDArray[np.float64]:
+        up = roots[roots.imag > 1e-12 * np.maximum(np.abs(roots), 1e-300)]
+        real = roots[np.abs(roots.imag) <= 1e-12 * np.maximum(np.abs(roots), 1e-300)]
+        total = np.zeros(x.shape)
+        with np.errstate(all="ignore"):
+            if up.size:
+                a2, b = up.real**2, up.imag
+                total = total + np.sum(2.0 * (xv**2 + a2 - b**2) / ((a2 + (xv - b) ** 2) * (a2 + (xv + b) ** 2)),
+                                       axis=-1)
+            if real.size:
+                total = total + np.sum(1.0 / (real.real**2 + xv**2), axis=-1)
+        return np.asarray(total, dtype=np.float64)
+
+    return np.asarray(part(z) - part(p), dtype=np.float64) if z.size else -part(p)
+
+
+@lru_cache(maxsize=4096)
+def prototype_shape(family: str, order: int, ripple_db: float, stopband_db: float) -> Shape:
+    """:class:`Shape` of the prototype: the turning points of its loss, found as the sign changes
+    of :func:`_slope_over_x` on a grid (300 points a decade over the span of the poles and zeros, and
+    97 points across every pole's resonance, Im p +/- 6 |Re p|, where the narrowest ripples lie),
+    each refined by bisection; transmission zeros on the axis are turning points as they are.
+    """
+    z, p, k = _prototype(family, order, ripple_db, stopband_db)
+    roots = np.concatenate([z, p])
+    mags = np.abs(roots[np.abs(roots) > 0])
+    lo, hi = float(mags.min()) * 1e-4, float(mags.max()) * 1e4
+    axis_zeros = sorted({float(abs(v.imag)) for v in z if abs(v.real) <= 1e-12 * max(1.0, abs(v)) and v.imag > 0})
+    pieces = [np.geomspace(lo, hi, int(300 * math.log10(hi / lo)) + 1)]
+    for r in roots:
+        if r.imag > 0:
+            pieces.append(r.imag + np.linspace(-6.0, 6.0, 97) * max(abs(r.real), 1e-9 * abs(r)))
+    for w in axis_zeros:
+        pieces.append(np.array([w * (1 - 1e-9), w * (1 + 1e-9)]))
+    grid = np.unique(np.concatenate(pieces))
+    grid = grid[grid > 0]
+    d = _slope_over_x(z, p, grid)
+    change = np.nonzero((np.sign(d[:-1]) * np.sign(d[1:]) < 0) & np.isfinite(d[:-1]) & np.isfinite(d[1:]))[0]
+    lo_x, hi_x, lo_d = grid[change], grid[change + 1], d[change]
+    if axis_zeros:  # a bracket around a zero on the axis changes sign through infinity, not through 0
+        around = np.array(axis_zeros)
+        keep = ~np.any((lo_x[:, None] <= around) & (around <= hi_x[:, None]), axis=1)
+        lo_x, hi_x, lo_d = lo_x[keep], hi_x[keep], lo_d[keep]
+    for _ in range(64):  # bisection on every bracket at once, to the last bits of a double
+        mid = 0.5 * (lo_x + hi_x)
+        d_mid = _slope_over_x(z, p, mid)
+        same = np.sign(d_mid) == np.sign(lo_d)
+        lo_x, lo_d = np.where(same, mid, lo_x), np.where(same, d_mid, lo_d)
+        hi_x = np.where(same, hi_x, mid)
+    turns: list[float] = [*axis_zeros, *(float(v) for v in 0.5 * (lo_x + hi_x))]
+    # A maximally flat passband has a slope that rounding alone turns about: keep a turning point
+    # only where the loss has moved by more than a nanodecibel (merging pieces that differ by
+    # less changes no least loss by more than that) [DER].
+    kept_x, kept_loss = [0.0], [float(_loss_normalised(z, p, k, np.array([0.0]))[0])]
+    for x in sorted(set(turns)):
+        loss_x = MAX_ATTENUATION_DB if x in axis_zeros else float(_loss_normalised(z, p, k, np.array([x]))[0])
+        if x in axis_zeros or abs(loss_x - kept_loss[-1]) > 1e-9:
+            kept_x.append(x)
+            kept_loss.append(loss_x)
+    xs, loss = np.array(kept_x), np.array(kept_loss)
+    limit = MAX_ATTENUATION_DB if len(p) > len(z) else float(min(max(-20.0 * math.log10(k), 0.0), MAX_ATTENUATION_DB))
+    return Shape(tuple(float(v) for v in xs), tuple(float(v) for v in loss), limit)
+
+
+Bands = tuple[float, float, float, int, float]
+"""(period T, a, b, m_first, m_last): the intervals [m T + a, m T + b] for m_first <= m <= m_last
+(``m_last`` may be ``math.inf``)."""
+
+
+def least_loss_on_bands(filt: AnalogFilter | None, bands: list[Bands]) -> LossAt:
+    """The least loss of ``filt`` over every interval of ``bands`` (in Hz), and where it lies.
+
+    Exact to the precision of the turning points: on each monotone piece of the loss
+    (:func:`prototype_shape`) the least value over the intervals meeting it lies at the lowest
+    point they cover when the loss rises there, and at the highest when it falls (on the last,
+    unbounded piece: the limit as f grows without bound) [DER].  So the answer costs a few
+    evaluations per piece however many intervals there are.  Without a filter the loss is 0 dB
+    everywhere and the answer is the lowest frequency covered.
+    """
+    best = LossAt(math.inf, math.nan)
+    if filt is None:
+        lows = [m0 * t + a for t, a, _, m0, m1 in bands if m0 <= m1]
+        return LossAt(0.0, max(min(lows), 0.0)) if lows else best
+    shape = prototype_shape(filt.family, filt.order, filt.ripple_db, filt.stopband_db)
+    z, p, k = _normalised(filt)
+    fc = filt.corner_hz
+    xs = (*shape.x, math.inf)
+    for i in range(len(xs) - 1):
+        lo, hi = xs[i] * fc, xs[i + 1] * fc
+        rising = (shape.loss[i + 1] if i + 1 < len(shape.loss) else shape.limit) >= shape.loss[i]
+        for t, a, b, m0, m1 in bands:
+            if m0 > m1:
+                continue
+            if rising:
+                m = max(m0, math.ceil((lo - b) / t))
+                f = max(lo, m * t + a)
+                if m > m1 or f > hi:
+                    continue
+            else:
+                m_top = m1 if math.isinf(hi) else min(m1, math.floor((hi - a) / t))
+                if math.isinf(m_top):
+                    if shape.limit < best.loss_db:
+                        best = LossAt(shape.limit, math.inf)
+                    continue
+                m = int(m_top)
+                f = min(hi, m * t + b)
+                if m < m0 or f < lo:
+                    continue
+            loss = float(_loss_normalised(z, p, k, np.array([f / fc]))[0])
+            if loss < best.loss_db or (loss == best.loss_db and f < best.frequency_hz):
+                best = LossAt(loss, f)
+    return best
+
+
+def fold_bands(rate_hz: float, half_width_hz: float) -> list[Bands]:
+    """Every band that folds onto 0..``half_width_hz`` when sampled at ``rate_hz``: k fs - w .. k fs + w
+    for k >= 1 [OS ch. 4]; as :data:`Bands`."""
+    return [(rate_hz, -half_width_hz, half_width_hz, 1, math.inf)]
+
+
+def largest_loss_between(filt: AnalogFilter, f_low_hz: float, f_high_hz: float) -> LossAt:
+    """The largest loss of ``filt`` over f_low .. f_high and where it lies (the worst deviation
+    from the filter's peak gain inside a band): the ends and every turning point between them
+    (:func:`prototype_shape`) [DER]."""
+    shape = prototype_shape(filt.family, filt.order, filt.ripple_db, filt.stopband_db)
+    z, p, k = _normalised(filt)
+    fc = filt.corner_hz
+    points = [f_low_hz, f_high_hz, *(x * fc for x in shape.x if f_low_hz < x * fc < f_high_hz)]
+    loss = _loss_normalised(z, p, k, np.array(points) / fc)
+    i = int(np.argmax(loss))
+    return LossAt(float(loss[i]), float(points[i]))
+
+
+def design_for_flatness(family: str, order: int, f_pass_hz: float, pass_loss_db: float,
+                        stop_atten_db: float) -> OrderDesign | None:
+    """``family`` at ``order``, cornered so its loss at ``f_pass_hz`` is exactly ``pass_loss_db``
+    (the corner :func:`least_order` gives its designs) [WT]: butterworth at f_pass / ep2^(1/2n),
+    ep2 = 10^(Ap/10) - 1; chebyshev1 and elliptic at f_pass with a ripple of Ap; bessel and
+    chebyshev2 (stopband ``stop_atten_db``) solved on their monotonic passband.  None when the
+    passband never reaches that loss."""
+    ap = float(pass_loss_db)
+    ripple = ap if family in ("chebyshev1", "elliptic") else 0.1
+    stop = float(stop_atten_db) if family in ("chebyshev2", "elliptic") else 80.0
+    if family == "elliptic" and not stop > ripple:
+        return None
+    if family == "butterworth":
+        corner = 1.0 / math.expm1(ap / 10.0 * math.log(10.0)) ** (1.0 / (2 * order))
+    elif family in ("bessel", "chebyshev2"):
+        x = _solve_normalised_loss(family, order, ripple, stop, ap)
+        if x is None:
+            return None
+        corner = 1.0 / x
+    else:
+        corner = 1.0
+    return OrderDesign(family, order, corner * f_pass_hz, ripple, stop)
 
 
 def frequency_for_attenuation(filt: AnalogFilter, atten_db: float) -> float | None:

@@ -20,10 +20,12 @@ References
 
 from __future__ import annotations
 
+import itertools
 import math
 
 import numpy as np
 
+from . import filters as flt
 from .memo import Memo
 
 # 20 log10(2) and 10 log10(1.5): the exact constants behind "6.02 N + 1.76 dB" [MT-001].
@@ -135,3 +137,43 @@ def min_rate_for_droop(f_hz: float, loss_db: float) -> float:
     from :func:`max_hold_fraction`.  Infinite when ``loss_db`` <= 0."""
     x = max_hold_fraction(loss_db)
     return f_hz / x if x > 0.0 else math.inf
+
+
+def largest_passband_loss(filt: flt.AnalogFilter | None, rate_hz: float, f_low_hz: float, f_high_hz: float,
+                          hold: bool) -> flt.LossAt:
+    """The largest loss of the output chain inside f_low .. f_high, and where it lies: the hold's
+    loss -20 log10 |sinc(f/fs)| (when ``hold``, i.e. a zero-order hold without sinc compensation)
+    plus the filter's loss A(f) [MT-017], [DER].
+
+    The hold's loss rises with f below fs, so on each monotone piece of A
+    (:func:`generator.dsp.filters.prototype_shape`) the sum is largest at the piece's top end where A
+    rises too; where A falls a 17-point grid refined by bounded Brent search finds the interior
+    maximum.
+    """
+    def total(f: np.ndarray) -> np.ndarray:
+        h = -20.0 * np.log10(np.abs(np.sinc(f / rate_hz))) if hold else np.zeros_like(f)
+        a = np.asarray(flt.attenuation_db(filt, f)) if filt is not None else np.zeros_like(f)
+        return np.asarray(h + a, dtype=np.float64)
+
+    cuts = [f_low_hz, f_high_hz]
+    if filt is not None:
+        shape = flt.prototype_shape(filt.family, filt.order, filt.ripple_db, filt.stopband_db)
+        cuts += [x * filt.corner_hz for x in shape.x if f_low_hz < x * filt.corner_hz < f_high_hz]
+    cuts = sorted(set(cuts))
+    best = flt.LossAt(-math.inf, math.nan)
+    from scipy import optimize
+
+    for a, b in itertools.pairwise(cuts) if len(cuts) > 1 else [(cuts[0], cuts[0])]:
+        grid = np.linspace(a, b, 17)
+        values = total(grid)
+        i = int(np.argmax(values))
+        f_best, v_best = float(grid[i]), float(values[i])
+        if 0 < i < len(grid) - 1:
+            res = optimize.minimize_scalar(lambda f: -float(total(np.array([f]))[0]),
+                                           bounds=(float(grid[i - 1]), float(grid[i + 1])), method="bounded",
+                                           options={"xatol": 1e-10 * max(float(grid[i]), 1e-300)})
+            if res.success and -float(res.fun) > v_best:
+                f_best, v_best = float(res.x), -float(res.fun)
+        if v_best > best.loss_db:
+            best = flt.LossAt(v_best, f_best)
+    return best

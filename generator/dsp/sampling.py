@@ -23,8 +23,9 @@ def nyquist_frequency(rate_hz: float) -> float:
     return rate_hz / 2.0
 
 
-def oversampling_ratio(rate_hz: float, f_high_hz: float) -> float:
-    """How far the rate exceeds the Nyquist rate of the band: OSR = fs / (2 f_high) [MT-002]."""
+def rate_over_nyquist(rate_hz: float, f_high_hz: float) -> float:
+    """How far the rate exceeds the Nyquist rate of the band: fs / (2 f_high) [MT-002] (not a
+    delta-sigma converter's oversampling ratio f_mod / fs)."""
     return rate_hz / (2.0 * f_high_hz)
 
 
@@ -54,15 +55,16 @@ def is_inverted(f_hz: float, rate_hz: float) -> bool:
     return nyquist_zone(f_hz, rate_hz) % 2 == 0
 
 
-def level_dbfs(amplitude_volts: float, full_scale_peak_volts: float) -> float:
-    """Sine-referenced dBFS of a sine of peak ``amplitude_volts`` at the converter input.
+def level_dbfs(amplitude_volts: float, full_scale_amplitude_volts: float) -> float:
+    """Sine-referenced dBFS of a sine of amplitude ``amplitude_volts`` at the converter.
 
-    dBFS = 20 log10(A / V_FS,peak): 0 dBFS is a full-scale sine [AES17].  Zero amplitude is
-    reported as -400 dBFS rather than minus infinity.
+    dBFS = 20 log10(A / A_FS), A_FS the amplitude of the largest sine the range holds (half its
+    width: 10 V on ±10 V, 2.5 V on 0..5 V): 0 dBFS is a full-scale sine [AES17].  Zero amplitude
+    is reported as -400 dBFS rather than minus infinity.
     """
-    if amplitude_volts <= 0 or full_scale_peak_volts <= 0:
+    if amplitude_volts <= 0 or full_scale_amplitude_volts <= 0:
         return -400.0
-    return max(20.0 * math.log10(amplitude_volts / full_scale_peak_volts), -400.0)
+    return max(20.0 * math.log10(amplitude_volts / full_scale_amplitude_volts), -400.0)
 
 
 def digital_filter_region(f_hz: float, period_hz: float, passband_hz: float, stopband_hz: float) -> str:

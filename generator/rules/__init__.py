@@ -51,6 +51,24 @@ class Hit:
     severity: str | None = None  # overrides the rule's default
 
 
+RELATIVE_TOLERANCE = 1e-9
+"""How far apart two numbers must be before a rule calls one beyond the other: a value reached
+through other units or another order of operations (100 g at 100 mV/g is 10.000000000000002 V)
+is the same value.  Far below any tolerance a measurement or a data sheet states."""
+
+
+def beyond(value: float, limit: float) -> bool:
+    """Whether ``value`` exceeds ``limit`` by more than rounding: value - limit >
+    RELATIVE_TOLERANCE x max(|value|, |limit|).  Every rule judges every threshold with this
+    (or :func:`short_of`), so a value exactly at a limit passes however it was computed."""
+    return value - limit > RELATIVE_TOLERANCE * max(abs(value), abs(limit))
+
+
+def short_of(value: float, need: float) -> bool:
+    """Whether ``value`` falls below ``need`` by more than rounding (:func:`beyond` mirrored)."""
+    return beyond(need, value)
+
+
 SystemCheck = Callable[[SystemAnalysis], Iterable[Finding]]
 ChannelCheck = Callable[[ChannelResult, System], Iterable[Hit]]
 

@@ -10,7 +10,7 @@ from ..analysis.amplitude import AmplitudeResult
 from ..dsp import quantization as q
 from ..model import Channel, System
 from ..quantities import Span, Unit, format_in_unit, format_percent, format_quantity
-from . import Hit, channel_rule
+from . import Hit, beyond, channel_rule, short_of
 
 UNDERUSED_BELOW = 0.1
 """Range usage under which a channel is flagged: a tenth of full scale (common practice)."""
@@ -44,21 +44,34 @@ def _peak_text(ch: Channel) -> str:
 
 
 def _gain_fix(ch: Channel, a: AmplitudeResult) -> str:
-    """'a gain of about 9.47 V/V (19.5 dB)': the gain that puts the peak at about 90 % of full scale."""
+    """'a gain of about 9.47 V/V (19.5 dB)': the gain that puts the peak at about 90 % of full scale.
+
+    On an input the converter sees peak x gain, on an output it must produce peak / gain."""
     usage = a.range_usage or 0.0
-    wanted = ch.conversion.gain * TARGET_USAGE / usage
-    if ch.conversion.gain == 1.0:
-        return f"a gain of about {_gain(wanted)} ahead of the converter"
-    return f"changing the gain from {_gain(ch.conversion.gain)} to about {_gain(wanted)}"
+    gain = ch.conversion.gain
+    wanted = gain * TARGET_USAGE / usage if ch.kind == "input" else gain * usage / TARGET_USAGE
+    where = "ahead of the converter" if ch.kind == "input" else "after the converter"
+    if gain == 1.0:
+        return f"a gain of about {_gain(wanted)} {where}"
+    return f"changing the gain from {_gain(gain)} to about {_gain(wanted)}"
+
+
+def _at_converter(ch: Channel, a: AmplitudeResult) -> str:
+    """'gives 12 V at the converter' (input) or 'needs 12 V from the converter' (output)."""
+    volts = format_quantity(a.peak_volts or 0.0, "V")
+    return f"gives {volts} at the converter" if ch.kind == "input" else f"needs {volts} from the converter"
 
 
 @channel_rule(
     "clipping",
     "error",
     "Peak beyond the converter's full scale",
-    """The signal at the converter, V_pk = peak x sensitivity x gain, must stay within the full
-    scale: V_pk <= full-scale peak. Beyond it the converter clips and every figure downstream
-    is wrong. Lower the gain, choose a less sensitive sensor or a wider full scale.""",
+    """The signal at the converter, V_pk = peak x sensitivity x gain on an input (peak / gain on an
+    output, the gain being after the D/A converter), must stay within the full scale: V_pk <= the
+    full-scale amplitude, half the range's width (a unipolar 0..5 V range holds a sine of 2.5 V
+    about its centre). Beyond it the converter clips and every figure downstream is wrong. Change
+    the gain, choose a less sensitive sensor or a wider full scale.""",
+    kinds=("input", "output"),
 )
 def clipping(result: ChannelResult, system: System) -> Iterator[Hit]:
     a = result.amplitude
@@ -66,13 +79,14 @@ def clipping(result: ChannelResult, system: System) -> Iterator[Hit]:
     conv = ch.conversion
     if a is None or a.peak_volts is None or conv.full_scale is None:
         return
-    if a.peak_volts <= a.full_scale_peak_volts:
+    if not beyond(a.peak_volts, a.full_scale_amplitude_volts):
         return
-    over = q.amplitude_db(a.peak_volts / a.full_scale_peak_volts)
+    over = q.amplitude_db(a.peak_volts / a.full_scale_amplitude_volts)
+    other = "a less sensitive sensor" if ch.kind == "input" else "a converter with a wider range"
     yield Hit(
-        f"{_peak_text(ch)} gives {format_quantity(a.peak_volts, 'V')} at the converter, "
-        f"{_db(over)} beyond the {_span(conv.full_scale)} full scale; try {_gain_fix(ch, a)} "
-        f"(about {format_percent(TARGET_USAGE)} of full scale), a less sensitive sensor or a wider full scale",
+        f"{_peak_text(ch)} {_at_converter(ch, a)}, {_db(over)} beyond the {_span(conv.full_scale)} full scale "
+        f"(amplitude {format_quantity(a.full_scale_amplitude_volts, 'V')}); try {_gain_fix(ch, a)} "
+        f"(about {format_percent(TARGET_USAGE)} of full scale), {other} or a wider full scale",
         _path(ch, "conversion.gain", "signal.peak"),
     )
 
@@ -81,20 +95,21 @@ def clipping(result: ChannelResult, system: System) -> Iterator[Hit]:
     "range-underused",
     "warning",
     "Peak uses less than a tenth of full scale",
-    """Range usage = V_pk / full-scale peak. A signal below a tenth of full scale (20 dB of
+    """Range usage = V_pk / full-scale amplitude. A signal below a tenth of full scale (20 dB of
     headroom; a common-practice threshold) wastes more than 3 bits: every contribution fixed in
-    volts (quantization, converter noise) grows by the same factor relative to the signal. Raise
-    the gain towards about 90 % of full scale, or choose a smaller full scale.""",
+    volts (quantization, converter noise) grows by the same factor relative to the signal. Change
+    the gain so the peak uses about 90 % of full scale, or choose a smaller full scale.""",
+    kinds=("input", "output"),
 )
 def range_underused(result: ChannelResult, system: System) -> Iterator[Hit]:
     a = result.amplitude
     ch = result.channel
     conv = ch.conversion
     usage = None if a is None else a.range_usage
-    if a is None or usage is None or usage <= 0 or usage >= UNDERUSED_BELOW or conv.full_scale is None:
+    if a is None or usage is None or usage <= 0 or not short_of(usage, UNDERUSED_BELOW) or conv.full_scale is None:
         return
     yield Hit(
-        f"{_peak_text(ch)} gives {format_quantity(a.peak_volts or 0.0, 'V')} at the converter, "
+        f"{_peak_text(ch)} {_at_converter(ch, a)}, "
         f"{format_percent(usage)} of the {_span(conv.full_scale)} full scale ({_db(a.headroom_db or 0.0)} "
         f"of headroom); {_gain_fix(ch, a)} would use about {format_percent(TARGET_USAGE)}, "
         "or choose a smaller full scale",
@@ -107,15 +122,17 @@ def range_underused(result: ChannelResult, system: System) -> Iterator[Hit]:
     "error",
     "LSB coarser than the required resolution",
     """One LSB referred to the measurand, q / (sensitivity x gain) with q = FSR / 2^N, must not
-    exceed the required `resolution`. Use more bits (N >= log2(FSR / (resolution x sensitivity
-    x gain))), or raise the gain if the peak still fits the full scale.""",
+    exceed the required `resolution` (on an output, q x gain, the step the driven voltage takes).
+    Use more bits (N >= log2(FSR / (resolution x sensitivity x gain))), or raise the gain if the
+    peak still fits the full scale.""",
+    kinds=("input", "output"),
 )
 def resolution(result: ChannelResult, system: System) -> Iterator[Hit]:
     a = result.amplitude
     ch = result.channel
     wanted = ch.signal.resolution
     lsb_si = None if a is None else a.lsb_si
-    if a is None or lsb_si is None or wanted is None or wanted <= 0 or lsb_si <= wanted:
+    if a is None or lsb_si is None or wanted is None or wanted <= 0 or not beyond(lsb_si, wanted):
         return
     per_unit = a.volts_per_unit or 1.0
     bits = q.bits_for_lsb(a.full_scale_range_volts, wanted * per_unit)
@@ -150,13 +167,16 @@ def _allowed_for(a: AmplitudeResult, name: str, required_db: float) -> float | N
     "Total SNR below the required SNR",
     """The noise contributions (quantization, sampling jitter, sensor noise), each relative to a
     sine at the channel's peak, add as powers: SNR_total = -10 log10(sum 10^(-SNR_i / 10)). It must
-    reach the required `snr`. The message names the largest contribution, the one to fix first.""",
+    reach the required `snr`. An output's budget holds the D/A converter's quantization and
+    jitter, referred through the gain after it. The message names the largest contribution, the
+    one to fix first.""",
+    kinds=("input", "output"),
 )
 def noise_floor(result: ChannelResult, system: System) -> Iterator[Hit]:
     a = result.amplitude
     ch = result.channel
     required = ch.signal.snr_db
-    if a is None or a.total_snr_db is None or required is None or a.total_snr_db >= required:
+    if a is None or a.total_snr_db is None or required is None or not short_of(a.total_snr_db, required):
         return
     top = a.dominant()
     if top is None or top.db is None:
@@ -164,9 +184,8 @@ def noise_floor(result: ChannelResult, system: System) -> Iterator[Hit]:
     need = _allowed_for(a, top.name, required)
     band = ch.signal.band
     rate = ch.conversion.rate
-    can_filter = (
-        not ch.signal.filtered_to_band and band is not None and rate is not None and band[1] - band[0] < rate / 2
-    )
+    can_filter = (ch.kind == "input" and not ch.signal.filtered_to_band and band is not None and rate is not None
+                  and band[1] - band[0] < rate / 2)
     if need is None:
         fix = "the other contributions alone already miss it, so improve them too"
     elif top.name == "quantization":
@@ -205,17 +224,20 @@ def noise_floor(result: ChannelResult, system: System) -> Iterator[Hit]:
     "Sampling jitter alone misses the required SNR",
     """A sine at the band top f_high sampled with rms jitter t_j can reach at most
     SNR_j = -20 log10(2 pi f_high t_j) (ADI MT-007, AN-756), whatever the bits. If that is below the
-    required `snr`, lower the jitter to t_j <= 10^(-SNR/20) / (2 pi f_high) or narrow the band.""",
+    required `snr`, lower the jitter to t_j <= 10^(-SNR/20) / (2 pi f_high) or narrow the band. A D/A
+    output's update clock jitters the same way. The jitter is the channel's own, else the
+    converter's aperture jitter and its clock's added as a root sum of squares (ADI MT-007).""",
+    kinds=("input", "output"),
 )
 def jitter_limit(result: ChannelResult, system: System) -> Iterator[Hit]:
     a = result.amplitude
     ch = result.channel
     required = ch.signal.snr_db
     band = ch.signal.band
-    jitter = ch.conversion.jitter
+    jitter = ch.conversion.total_jitter
     if a is None or a.jitter_snr_db is None or required is None or band is None or jitter is None:
         return
-    if a.jitter_snr_db >= required:
+    if not short_of(a.jitter_snr_db, required):
         return
     yield Hit(
         f"{format_quantity(jitter, 's')} rms of sampling jitter limits a sine at "

@@ -7,12 +7,10 @@ import math
 from collections.abc import Iterable, Iterator
 
 from ..analysis import ChannelResult, SystemAnalysis
-from ..analysis.budgets import ClockCheck
+from ..analysis.budgets import STATED_TOLERANCE, ClockCheck, stated_rate_basis
 from ..model import Channel, SourceRef, System
 from ..quantities import format_percent, format_quantity
-from . import Finding, Hit, channel_rule, system_rule
-
-STATED_TOLERANCE = 0.01  # a stated figure may differ from the computed one by 1 %
+from . import Finding, Hit, beyond, channel_rule, system_rule
 
 
 def _hz(v: float, digits: int = 4) -> str:
@@ -68,7 +66,7 @@ def converter_throughput(analysis: SystemAnalysis) -> Iterator[Finding]:
     system = analysis.spec.system
     for load in analysis.budgets.converters:
         conv = system.converters[load.id]
-        if load.load > 1.0:
+        if beyond(load.load, 1.0):
             if load.sampling == "multiplexed":
                 msg = (f"{len(load.channels)} channels on multiplexed converter '{load.id}' ask for "
                        f"{_sps(load.aggregate_rate_hz)} in total, {format_percent(load.load)} of its "
@@ -165,16 +163,16 @@ def clock_divider(analysis: SystemAnalysis) -> Iterator[Finding]:
 def link_capacity(analysis: SystemAnalysis) -> Iterator[Finding]:
     system = analysis.spec.system
     for lk in analysis.budgets.links:
-        if lk.load_bps <= lk.usable_bps:
+        if not beyond(lk.load_bps, lk.usable_bps):
             continue
-        over_raw = lk.load_bps > lk.capacity_bps
+        over_raw = beyond(lk.load_bps, lk.capacity_bps)
         excess = lk.load_bps - (lk.capacity_bps if over_raw else lk.usable_bps)
         limit = (f"its capacity {_bps(lk.capacity_bps)}" if over_raw else
                  f"the {format_percent(lk.limit)} of capacity it may use ({_bps(lk.usable_bps)}, "
                  f"{format_percent(1 - lk.limit)} headroom)")
         yield _finding(
             "link-capacity", "error" if over_raw else "warning", system.links[lk.id].source, lk.channels,
-            f"link '{lk.id}' would carry {_bps(lk.load_bps)} ({_bps(lk.payload_bps)} of samples plus overhead), "
+            f"link '{lk.id}' would carry {_bps(lk.load_bps)} ({_bps(lk.data_rate_bps)} of samples plus overhead), "
             f"{format_percent(lk.utilisation)} of capacity, above {limit}; shed at least "
             f"{_bps(excess)} (lower rates or containers, or move channels to another link)")
 
@@ -191,7 +189,7 @@ def link_capacity(analysis: SystemAnalysis) -> Iterator[Finding]:
 def storage_capacity(analysis: SystemAnalysis) -> Iterator[Finding]:
     system = analysis.spec.system
     for st in analysis.budgets.stores:
-        if st.bytes_needed is None or st.bytes_needed <= st.capacity_bytes:
+        if st.bytes_needed is None or not beyond(st.bytes_needed, st.capacity_bytes):
             continue
         channels = [cid for lk in analysis.budgets.links if lk.store == st.id for cid in lk.channels]
         yield _finding(
@@ -209,8 +207,9 @@ def storage_capacity(analysis: SystemAnalysis) -> Iterator[Finding]:
     "Matched channels drift apart at the band edge",
     """Channels in one group must stay time-aligned. Their relative phase at the group's band edge
     f is the exact difference of their analog filters' phase responses, phi_a(f) - phi_b(f) (not the
-    DC delay difference, which under-reads near a filter's corner), less 2 pi f times their
-    multiplexer scan skew. The spread over the members must not exceed the group's phase limit,
+    DC delay difference, which under-reads near a filter's corner), plus 2 pi f times the difference
+    of their multiplexer scan skews (a channel sampled t later records a sine leading by 2 pi f t,
+    so a later slot offsets a filter's lag). The spread over the members must not exceed the group's phase limit,
     nor, as time (spread / 2 pi f), its skew limit. Give the members identical filters, put them on
     a simultaneous converter, or relax the limit.""",
 )
@@ -222,9 +221,9 @@ def group_skew(analysis: SystemAnalysis) -> Iterator[Finding]:
         worst = max(g.phases_rad, key=lambda c: g.phases_rad[c])
         best = min(g.phases_rad, key=lambda c: g.phases_rad[c])
         over = []
-        if g.limit_phase_rad is not None and g.phase_error_rad > g.limit_phase_rad:
+        if g.limit_phase_rad is not None and beyond(g.phase_error_rad, g.limit_phase_rad):
             over.append(f"phase limit {_deg(g.limit_phase_rad)}")
-        if g.limit_skew_s is not None and g.skew_s > g.limit_skew_s:
+        if g.limit_skew_s is not None and beyond(g.skew_s, g.limit_skew_s):
             over.append(f"skew limit {format_quantity(g.limit_skew_s, 's')}")
         if not over:
             continue
@@ -241,24 +240,33 @@ def group_skew(analysis: SystemAnalysis) -> Iterator[Finding]:
     "A figure stated in the spec disagrees with the computed one",
     """Where a spec states a derived figure ([stated] data_rate, lsb), it must agree with what
     specfold computes from the requirement to within 1 %: |stated - computed| / computed <= 0.01.
-    The data rate is fs x container bits (image: frame rate x pixels x container bits); the LSB is
-    FSR / 2^N. Correct the stated figure, or the settings it was derived from.""",
+    A stated data rate may be either of the two a channel has: in containers, fs x container bits
+    (image: frame rate x pixels x container bits), or packed, fs x bits; the message says which one
+    it matched or how far it is from both. The LSB is FSR / 2^N. Correct the stated figure, or the
+    settings it was derived from.""",
     kinds=("input", "output", "image"),
 )
 def stated_figure_mismatch(result: ChannelResult, system: System) -> Iterator[Hit]:
     stated, b = result.channel.stated, result.budget
     if b is None:
         return
-    checks = [("data rate", stated.data_rate_bps, b.data_rate_bps, "bit/s", "stated.data_rate"),
-              ("LSB", stated.lsb_volts, b.lsb_volts, "V", "stated.lsb")]
-    for name, said, computed, dim, path in checks:
-        if said is None or computed is None or computed == 0:
-            continue
-        err = (said - computed) / computed
-        if abs(err) > STATED_TOLERANCE:
-            yield Hit(f"stated {name} {format_quantity(said, dim)} differs from the computed "
-                      f"{format_quantity(computed, dim)} by {'+' if err > 0 else ''}{format_percent(err)}; state "
-                      f"{format_quantity(computed, dim)}, or correct the settings it was derived from", path)
+    said = stated.data_rate_bps
+    if said is not None and stated_rate_basis(said, b.data_rate_bps, b.payload_rate_bps) is None:
+        near = min((b.data_rate_bps, "in containers"), (b.payload_rate_bps, "packed"),
+                   key=lambda c: abs(said - c[0]) / c[0] if c[0] else math.inf)
+        err = (said - near[0]) / near[0] if near[0] else math.inf
+        yield Hit(f"stated data rate {format_quantity(said, 'bit/s')} matches neither computed one: "
+                  f"{format_quantity(b.data_rate_bps, 'bit/s')} in containers, "
+                  f"{format_quantity(b.payload_rate_bps, 'bit/s')} packed (nearest: {near[1]}, "
+                  f"{'+' if err > 0 else ''}{format_percent(err)}); state one of them, or correct the settings it "
+                  "was derived from", "stated.data_rate")
+    lsb, computed = stated.lsb_volts, b.lsb_volts
+    if lsb is not None and computed is not None and computed != 0:
+        err = (lsb - computed) / computed
+        if beyond(abs(err), STATED_TOLERANCE):
+            yield Hit(f"stated LSB {format_quantity(lsb, 'V')} differs from the computed "
+                      f"{format_quantity(computed, 'V')} by {'+' if err > 0 else ''}{format_percent(err)}; state "
+                      f"{format_quantity(computed, 'V')}, or correct the settings it was derived from", "stated.lsb")
 
 
 @system_rule(

@@ -8,7 +8,7 @@ from ..analysis import ChannelResult
 from ..analysis.image import SQUARE_TOLERANCE
 from ..model import System
 from ..quantities import format_percent, format_quantity
-from . import Hit, channel_rule
+from . import Hit, beyond, channel_rule
 
 
 @channel_rule(
@@ -24,7 +24,7 @@ from . import Hit, channel_rule
 def spatial_nyquist(result: ChannelResult, system: System) -> Iterator[Hit]:
     im = result.image
     detail = result.channel.signal.detail_cycles_per_m
-    if im is None or detail is None or detail <= im.spatial_nyquist_cycles_per_m * (1 + 1e-9):
+    if im is None or detail is None or not beyond(detail, im.spatial_nyquist_cycles_per_m):
         return
     pitch_max = 1.0 / (2.0 * detail)
     yield Hit(

@@ -11,7 +11,7 @@ from ..analysis.output import filter_loss_db, image_rejection_at
 from ..dsp import reconstruction as rec
 from ..model import Channel, System
 from ..quantities import format_in_unit, format_quantity
-from . import Hit, channel_rule
+from . import Hit, beyond, channel_rule, short_of
 
 
 def _path(ch: Channel, *paths: str) -> str:
@@ -53,18 +53,21 @@ def _hz(value: float) -> str:
 )
 def zoh_droop(result: ChannelResult, system: System) -> Iterator[Hit]:
     o = result.output
-    if o is None or o.passband_error_db <= o.flatness_db * (1 + 1e-9):
+    if o is None or not beyond(o.passband_error_db, o.flatness_db):
         return
-    hold_loss = -(o.zoh_droop_db or 0.0)
-    filt_loss = o.filter_droop_db or 0.0
+    at = o.passband_error_at_hz
+    hold_loss = -(rec.hold_droop_db(at, o.rate_hz)) if o.hold == "zero-order" and not o.sinc_compensation else 0.0
+    filt_loss = filter_loss_db(result.channel.filter, at) or 0.0
     parts = [f"the hold loses {_db(hold_loss)}" if o.zoh_droop_db is not None else "no hold"]
     if o.filter_droop_db is not None:
         parts.append(f"the filter {_db(filt_loss)}")
-    head = (f"at the band top {_hz(o.band_high_hz)} the output loses {_db(o.passband_error_db)} "
+    place = (f"at the band top {_hz(at)}" if math.isclose(at, o.band_high_hz, rel_tol=1e-9)
+             else f"at {_hz(at)}, inside the band")
+    head = (f"{place} the output loses {_db(o.passband_error_db)} "
             f"({'; '.join(parts)}), more than the flatness {_db(o.flatness_db)}")
     budget = o.flatness_db - filt_loss
     if hold_loss > 0.0 and budget > 0.0:
-        rate = rec.min_rate_for_droop(o.band_high_hz, budget)
+        rate = rec.min_rate_for_droop(at, budget)
         fix = (f"raise the rate to at least {_hz(rate)}, or set sinc_compensation = true "
                "to pre-correct the stream for the hold")
     elif hold_loss > 0.0:
@@ -78,12 +81,14 @@ def zoh_droop(result: ChannelResult, system: System) -> Iterator[Hit]:
 @channel_rule(
     "image-rejection",
     "warning",
-    "First image not suppressed enough",
-    """A held output carries images of every tone f at k fs +/- f (ADI MT-017). The hold puts the
-    first image, at fs - f_high, 20 log10(f_high/(fs - f_high)) dB relative to the tone; the
-    reconstruction filter must add the rest of the required suppression there:
-    hold + filter >= `image_rejection` (default: the DAC's quantization floor 6.02 N + 1.76 dB,
-    ADI MT-001). Fix: raise the rate (the image moves up, both parts grow), or steepen the filter.""",
+    "An image not suppressed enough",
+    """A held output carries images of every tone f at g = k fs +/- f, k >= 1 (ADI MT-017). The
+    hold puts each 20 log10(g / f) dB below its tone (|sinc(g/fs)| / |sinc(f/fs)| = f / g), the
+    reconstruction filter adds its loss A(g); the least of hold + filter over every image of every
+    tone in the band (not only the first image, fs - f_high: a chebyshev2 or elliptic stopband
+    ripples back up) must reach `image_rejection` (default: the DAC's quantization floor
+    6.02 N + 1.76 dB, ADI MT-001). Fix: raise the rate (the images move up), or steepen the
+    filter.""",
     kinds=("output",),
 )
 def image_rejection(result: ChannelResult, system: System) -> Iterator[Hit]:
@@ -92,32 +97,34 @@ def image_rejection(result: ChannelResult, system: System) -> Iterator[Hit]:
     if o is None or o.required_image_rejection_db is None:
         return
     required = o.required_image_rejection_db
-    if o.image_rejection_db >= required - 1e-9:
+    if not short_of(o.image_rejection_db, required):
         return
     filt = ch.filter
-    have = [f"the hold gives {_db(o.hold_image_attenuation_db)}" if o.hold == "zero-order" else "no hold"]
-    have.append(f"the filter {_db(o.filter_image_attenuation_db)}" if o.filter_image_attenuation_db is not None
-                else "no designed reconstruction filter")
-    needed = o.filter_needed_at_image_db if o.filter_needed_at_image_db is not None else required
-    head = (f"the first image at {_hz(o.first_image_hz)} sits {_db(o.image_rejection_db)} below the tone "
-            f"({'; '.join(have)}); {_db(required)} required")
+    where = ("images ever higher above the band (the filter's stopband floor, approached as the frequency grows)"
+             if math.isinf(o.image_worst_hz) else
+             f"the image at {_hz(o.image_worst_hz)} of the {_hz(o.image_worst_tone_hz)} tone")
+    hold = "the hold and the filter together" if o.hold == "zero-order" else "the filter (no hold)"
+    head = (f"{where} sits {_db(o.image_rejection_db)} below its tone ({hold}; the first image, at "
+            f"{_hz(o.first_image_hz)}, gets {_db(o.hold_image_attenuation_db)} from the hold and "
+            f"{_db(o.filter_image_attenuation_db or 0.0)} from the filter); {_db(required)} required")
     fixes: list[str] = []
     rate = _root(lambda fs: image_rejection_at(ch, fs) - required, o.rate_hz, o.rate_hz * 1e4)
     if rate is not None:
         fixes.append(f"raise the rate to at least {_hz(rate)}")
     if filt is not None and filt.order is not None and filt.corner is not None:
         def excess(corner: float) -> float:
-            return (filter_loss_db(replace(filt, corner=corner), o.first_image_hz) or 0.0) - needed
+            return image_rejection_at(replace(ch, filter=replace(filt, corner=corner)), o.rate_hz) - required
 
-        corner = _root(excess, o.first_image_hz * 1e-6, filt.corner)
-        target = f"a filter with at least {_db(needed)} at {_hz(o.first_image_hz)}"
+        corner = _root(excess, o.band_high_hz, filt.corner)
         if corner is not None and corner > o.band_high_hz:
-            fixes.append(f"use {target} (this family and order: corner at most {_hz(corner)}, "
-                         "check the band-top droop) or raise the order")
+            fixes.append(f"lower the filter's corner to at most {_hz(corner)} (check the band-top droop), "
+                         "or raise the order")
         else:
-            fixes.append(f"use {target} (a higher order or a steeper family)")
+            fixes.append("use a higher order or a steeper family")
     else:
-        fixes.append(f"add a reconstruction filter with at least {_db(needed)} at {_hz(o.first_image_hz)}")
+        needed = o.filter_needed_at_image_db if o.filter_needed_at_image_db is not None else required
+        fixes.append(f"add a reconstruction filter with at least {_db(needed)} at {_hz(o.first_image_hz)} "
+                     "and beyond")
     yield Hit(f"{head}: {', or '.join(fixes)}", _path(ch, "filter", "conversion.rate", "signal.image_rejection"))
 
 
@@ -138,7 +145,7 @@ def output_overrange(result: ChannelResult, system: System) -> Iterator[Hit]:
     fs = ch.conversion.full_scale
     if o is None or o.output_peak_volts is None or limit is None or fs is None or ch.unit.dim != "V":
         return
-    if o.output_peak_volts <= limit * (1 + 1e-9):
+    if not beyond(o.output_peak_volts, limit):
         return
     gain_max = limit / fs.peak
     yield Hit(

@@ -14,7 +14,7 @@ from collections.abc import Iterator
 from ..analysis import ChannelResult
 from ..model import System
 from ..quantities import format_quantity
-from . import Hit, channel_rule
+from . import Hit, beyond, channel_rule
 
 ELV_RMS_V = 30.0  # common practice
 ELV_PEAK_V = 42.4  # common practice (30 V rms x sqrt 2)
@@ -27,18 +27,18 @@ def _reasons(result: ChannelResult) -> tuple[list[str], str]:
     reasons: list[str] = []
     paths: list[str] = []
     wv = ch.safety.working_voltage
-    if wv is not None and wv > ELV_RMS_V:
+    if wv is not None and beyond(wv, ELV_RMS_V):
         reasons.append(f"working voltage {format_quantity(wv, 'V')} rms (above {format_quantity(ELV_RMS_V, 'V')} rms)")
         paths.append("safety.working_voltage")
     peak = ch.signal.peak
-    if ch.kind == "input" and ch.unit.dim == "V" and peak is not None and peak > ELV_PEAK_V:
+    if ch.kind == "input" and ch.unit.dim == "V" and peak is not None and beyond(peak, ELV_PEAK_V):
         reasons.append(f"measured voltage up to {format_quantity(peak, 'V')} peak "
                        f"(above {format_quantity(ELV_PEAK_V, 'V')} peak)")
         paths.append("signal.peak")
     if ch.kind == "output":
         fs = ch.conversion.full_scale
         drive = None if fs is None else fs.peak * ch.conversion.gain
-        if drive is not None and drive > ELV_PEAK_V:
+        if drive is not None and beyond(drive, ELV_PEAK_V):
             reasons.append(f"drive up to {format_quantity(drive, 'V')} peak "
                            f"(above {format_quantity(ELV_PEAK_V, 'V')} peak)")
             paths.append("conversion.gain" if "conversion.gain" in ch.lines else "conversion")

@@ -2,15 +2,17 @@
 
 from __future__ import annotations
 
+import math
 from collections.abc import Iterator
 
 from ..analysis import ChannelResult
 from ..analysis.sampling import DIGITAL, SamplingResult
 from ..dsp import filters as flt
+from ..dsp import folding
 from ..dsp.filters import AnalogFilter, OrderDesign
 from ..model import System
 from ..quantities import format_quantity
-from . import Hit, channel_rule
+from . import Hit, beyond, channel_rule, short_of
 
 
 @channel_rule(
@@ -24,7 +26,7 @@ from . import Hit, channel_rule
 )
 def below_nyquist(result: ChannelResult, system: System) -> Iterator[Hit]:
     s = result.sampling
-    if s is None or s.rate_hz >= 2 * s.band_high_hz:
+    if s is None or not short_of(s.rate_hz, 2 * s.band_high_hz):
         return
     yield Hit(
         f"rate {format_quantity(s.rate_hz, 'Hz')} cannot carry a band up to "
@@ -38,9 +40,6 @@ def below_nyquist(result: ChannelResult, system: System) -> Iterator[Hit]:
 # ---------------------------------------------------------------------------------------------
 # The anti-aliasing filter
 # ---------------------------------------------------------------------------------------------
-
-_TOL_DB = 1e-6
-
 
 def _hz(value: float) -> str:
     return format_quantity(value, "Hz")
@@ -81,21 +80,25 @@ def _order_advice(s: SamplingResult, family: str | None) -> str:
 
 
 def _skip_alias_checks(s: SamplingResult | None) -> bool:
-    return s is None or not s.has_input_figures or s.rate_hz < 2 * s.band_high_hz
+    return s is None or not s.has_input_figures or short_of(s.rate_hz, 2 * s.band_high_hz)
 
 
 @channel_rule(
     "alias-rejection",
     "error",
     "Not enough attenuation where content folds onto the band",
-    """Content at fs - f_high folds onto the top of the band. It must arrive below the channel's
-    floor, so the anti-aliasing must give A(fs - f_high) >= out_of_band - floor, where the floor
-    is the required snr below the signal at peak (peak in dBFS = 20 log10(peak x sensitivity x
-    gain / full-scale peak), taken as 0 dBFS when unknown), or, without an snr, the quantization
-    floor of a full-scale sine, -(6.0206 N + 1.7609) dBFS, and out_of_band defaults to 0 dBFS
-    (ADI MT-001, MT-002). On a delta-sigma converter the decimation filter's stopband rejection
-    covers content near fs, and the analog filter must give the same margin at f_mod - f_high,
-    where content folds through the modulator itself; the weaker of the two is reported.""",
+    """Everything in k fs - f_high .. k fs + f_high (k >= 1) folds onto the band (Oppenheim &
+    Schafer ch. 4). It must arrive below the channel's floor, so the least attenuation over all of
+    those bands (not only at fs - f_high: a chebyshev2 or elliptic stopband ripples back up, and an
+    even-order one tends to its floor as f grows) must reach out_of_band - floor, where the floor is
+    the required snr below the signal at peak (peak in dBFS = 20 log10(V_pk / full-scale
+    amplitude), taken as 0 dBFS when unknown), or, without an snr, the quantization floor of a
+    full-scale sine, -(6.0206 N + 1.7609) dBFS, and out_of_band defaults to 0 dBFS (ADI MT-001,
+    MT-002). On a delta-sigma converter the decimation filter's stopband rejection adds to the
+    analog filter's loss, except within its stopband edge of every multiple of the modulator rate
+    f_mod (there content folds through the modulator itself, and in its own transition band), where
+    only the analog filter counts; no analog filter counts as 0 dB. A decimation filter
+    system.toml does not describe earns no credit; an unknown modulator rate is reported.""",
 )
 def alias_rejection(result: ChannelResult, system: System) -> Iterator[Hit]:
     s = result.sampling
@@ -106,56 +109,128 @@ def alias_rejection(result: ChannelResult, system: System) -> Iterator[Hit]:
         return
     need = s.required_alias_rejection_db
     have = s.alias_rejection_db
-    if need is None or have is None or have >= need - _TOL_DB:
+    if need is None or have is None:
         return
     filt = s.filter
-    if s.decimation is not None and s.alias_rejection_source == DIGITAL:
-        dec = s.decimation
-        if dec.attenuation_db(s.first_alias_hz) <= 0:
-            stop_frac = dec.stopband_hz / s.rate_hz
-            fix = (f"raise the rate to at least {_hz(s.band_high_hz / (1 - stop_frac))}" if stop_frac < 1
-                   else "raise the rate")
-            yield Hit(
-                f"the first alias {_hz(s.first_alias_hz)} lies below the decimation filter's stopband edge "
-                f"{_hz(dec.stopband_hz)}, where its rejection is not specified; {_db(need)} needed there "
-                f"(the analog filter gives {_db(have)}): {fix}, or lower the band top",
-                "conversion.rate",
-            )
+    conv_id = result.channel.conversion.converter or ""
+    if s.delta_sigma and s.decimation is not None and not s.decimation.modulator_rate_hz:
+        yield from _modulator_unknown(s, need, conv_id)
+        if filt is None:
             return
+    if not short_of(have, need):
+        return
+    if filt is None and not s.delta_sigma:
+        return  # filter-missing reports it
+    undescribed = (f"; converter '{conv_id}' does not describe its decimation filter (passband, stopband, "
+                   "stopband_rejection in system.toml), so it is given no credit" if s.delta_sigma
+                   and s.decimation is None else "")
+    where = _worst_place(s)
+    if s.alias_rejection_source == DIGITAL and s.decimation is not None:
+        dec = s.decimation
+        analog = have - dec.rejection_db
+        verb = "make the analog filter give" if filt is not None else "add an analog filter giving"
         yield Hit(
-            f"the decimation filter rejects content near fs by {_db(dec.rejection_db)}"
-            f"{f' (with the analog filter, {_db(have)})' if filt is not None else ''}, "
-            f"{_db(need)} needed at {_hz(s.first_alias_hz)} for out-of-band content at "
-            f"{_dbfs(s.out_of_band_dbfs)} to fold below the {_dbfs(s.floor_dbfs or 0.0)} floor: add an analog filter "
-            f"giving {_db(need - have + (s.filter_rejection_at_first_alias_db or 0.0))} at {_hz(s.first_alias_hz)}, "
-            "or choose a converter with more stopband rejection",
+            f"{where}: the decimation filter rejects it by {_db(dec.rejection_db)}"
+            f"{f' and {_describe(filt)} by {_db(analog)}' if filt is not None else ''}, {_db(need)} needed "
+            f"for out-of-band content at {_dbfs(s.out_of_band_dbfs)} to fold below the "
+            f"{_dbfs(s.floor_dbfs or 0.0)} floor: {verb} {_db(need - dec.rejection_db)} there, or choose a converter "
+            "with more stopband rejection",
             "filter.order" if filt is not None else "conversion.converter",
         )
         return
-    if filt is None:
-        return  # filter-missing reports it
-    if s.decimation is not None:
-        edge = s.modulator_alias_hz or 0.0
-        advice = _order_advice(s, filt.family)
+    transition = _transition_hit(s, need)
+    if transition is not None:
+        yield transition
+    if filt is None:  # a delta-sigma input with no analog filter at all
+        advice = _order_advice(s, None).removeprefix("use ")
         yield Hit(
-            f"the modulator rate {_hz(edge + s.band_high_hz)} folds {_hz(edge)} onto the band top "
-            f"{_hz(s.band_high_hz)}; {_describe(filt)} gives {_db(have)} there, {_db(need)} needed"
-            f"{': ' + advice if advice else ''}",
-            "filter.order",
+            f"no analog filter ahead of the delta-sigma modulator: {_modulator_place(s)} with 0 dB of rejection, "
+            f"{_db(need)} needed{undescribed}: add a [filter]{', e.g. ' + advice if advice else ''}",
+            "conversion.converter",
         )
         return
-    fixes = []
-    f_ok = flt.frequency_for_attenuation(filt, need)
-    if f_ok is not None:
-        fixes.append(f"raise the rate to at least {_hz(f_ok + s.band_high_hz)}")
+    if transition is not None and s.alias_worst_band == folding.TRANSITION:
+        return
     advice = _order_advice(s, filt.family)
+    fixes = []
+    if s.alias_worst_band == folding.FOLD and not s.delta_sigma:
+        f_ok = flt.frequency_for_attenuation(filt, need)
+        if f_ok is not None:
+            fixes.append(f"raise the rate to at least {_hz(f_ok + s.band_high_hz)}")
     if advice:
         fixes.append(advice)
     fix = ", or ".join(fixes) if fixes else "lower out_of_band or raise the rate"
     yield Hit(
-        f"rate {_hz(s.rate_hz)} folds {_hz(s.first_alias_hz)} onto the band top {_hz(s.band_high_hz)}; "
-        f"{_describe(filt)} gives {_db(have)} there, {_db(need)} needed: {fix}",
+        f"{where}; {_describe(filt)} gives {_db(have)} there, {_db(need)} needed{undescribed}: {fix}",
         "filter.order",
+    )
+
+
+def _worst_place(s: SamplingResult) -> str:
+    """'content at 29.6 kHz folds onto 1.6 kHz': where the least rejection lies, in words."""
+    f = s.alias_worst_hz
+    if f is None or math.isinf(f):
+        return (f"content ever higher above the band (the filter's stopband floor, approached as the frequency "
+                f"grows) folds onto it at {_hz(s.rate_hz)}")
+    if s.alias_worst_band == folding.MODULATOR and s.decimation is not None and s.decimation.modulator_rate_hz:
+        f_mod = s.decimation.modulator_rate_hz
+        return (f"content at {_hz(f)}, near the modulator rate {_hz(f_mod)}, folds through the modulator onto "
+                f"{_hz(abs(math.remainder(f, f_mod)))}")
+    return f"content at {_hz(f)} folds onto {_hz(abs(math.remainder(f, s.rate_hz)))}"
+
+
+def _modulator_place(s: SamplingResult) -> str:
+    """Where content folds through the modulator, in words."""
+    if s.alias_worst_band == folding.MODULATOR:
+        return _worst_place(s)
+    f_mod = _modulator(s)
+    if f_mod is None:
+        return "content near the modulator rate folds through the modulator onto the band"
+    return (f"content at {_hz(f_mod - s.band_high_hz)}, near the modulator rate {_hz(f_mod)}, folds through the "
+            f"modulator onto {_hz(s.band_high_hz)}")
+
+
+def _transition_hit(s: SamplingResult, need: float) -> Hit | None:
+    """The first alias inside the decimation filter's transition band (below its stopband edge), where
+    it rejects nothing and only the analog filter counts; None when that is not the case or suffices."""
+    dec = s.decimation
+    if dec is None or not s.first_alias_hz < dec.stopband_hz:
+        return None
+    got = (s.alias_rejection_db if s.alias_worst_band == folding.TRANSITION and s.alias_rejection_db is not None
+           else s.filter_rejection_at_first_alias_db or 0.0)
+    if not short_of(got, need):
+        return None
+    f = s.alias_worst_hz if s.alias_worst_band == folding.TRANSITION and s.alias_worst_hz else s.first_alias_hz
+    stop_frac = dec.stopband_hz / s.rate_hz
+    fix = (f"raise the rate to at least {_hz(s.band_high_hz / (1 - stop_frac))}" if stop_frac < 1
+           else "raise the rate")
+    analog = f"{_describe(s.filter)} gives {_db(got)}" if s.filter is not None else "no analog filter"
+    return Hit(
+        f"content at {_hz(f)} folds onto {_hz(abs(math.remainder(f, s.rate_hz)))}, inside the decimation filter's "
+        f"transition band (below its stopband edge {_hz(dec.stopband_hz)}), where it rejects nothing; "
+        f"{_db(need)} needed there ({analog}): {fix}, or lower the band top",
+        "conversion.rate",
+    )
+
+
+def _modulator_unknown(s: SamplingResult, need: float, conv_id: str) -> Iterator[Hit]:
+    """A delta-sigma input whose modulator rate is unknown: what folds through the modulator cannot
+    be placed, so it is said, not passed silently (an error when there is no analog filter at all)."""
+    if s.filter is None:
+        yield Hit(
+            f"no analog filter ahead of the delta-sigma modulator: content near the modulator rate folds "
+            f"through it with 0 dB of rejection, {_db(need)} needed; converter '{conv_id}' gives no "
+            "modulator_rate or oversampling_ratios, so where it lies is not known either: add a [filter] and "
+            "give the modulator rate in system.toml",
+            "conversion.converter",
+        )
+        return
+    yield Hit(
+        f"converter '{conv_id}' gives no modulator_rate or oversampling_ratios, so whether {_describe(s.filter)} "
+        f"rejects what folds through the modulator ({_db(need)} needed there) cannot be checked: give the "
+        "modulator rate in system.toml",
+        "conversion.converter",
+        severity="warning",
     )
 
 
@@ -163,10 +238,12 @@ def alias_rejection(result: ChannelResult, system: System) -> Iterator[Hit]:
     "band-edge-droop",
     "warning",
     "The filter loses too much at the top of the band",
-    """The anti-aliasing filter's loss at the top of the band, A(f_high) = -20 log10 |H(j 2 pi
-    f_high)|, must not exceed the allowed flatness (default 0.5 dB). For a butterworth with its
-    -3 dB corner at fc this is 10 log10(1 + (f_high / fc)^(2n)) (Williams & Taylor); the corner
-    that just meets the flatness is fc = f_high / (10^(flatness/10) - 1)^(1/2n). On a
+    """The anti-aliasing filter's largest loss inside the band, max A(f) for f_low <= f <= f_high with
+    A(f) = -20 log10 |H(j 2 pi f)| relative to its peak gain, must not exceed the allowed flatness
+    (default 0.5 dB). For a monotonic family it lies at the band top: a butterworth with its -3 dB
+    corner at fc loses 10 log10(1 + (f_high / fc)^(2n)) there (Williams & Taylor), and the corner
+    that just meets the flatness is fc = f_high / (10^(flatness/10) - 1)^(1/2n). A chebyshev1 or
+    elliptic loses up to its ripple anywhere inside its passband (an even order at DC). On a
     delta-sigma converter the band must also sit inside the decimation filter's passband,
     f_high <= passband x fs.""",
 )
@@ -175,7 +252,7 @@ def band_edge_droop(result: ChannelResult, system: System) -> Iterator[Hit]:
     if s is None or not s.has_input_figures:
         return
     dec = s.decimation
-    if dec is not None and s.band_high_hz > dec.passband_hz * (1 + 1e-12):
+    if dec is not None and beyond(s.band_high_hz, dec.passband_hz):
         ratio = dec.passband_hz / s.rate_hz
         yield Hit(
             f"band top {_hz(s.band_high_hz)} lies above the decimation filter's passband edge "
@@ -185,25 +262,34 @@ def band_edge_droop(result: ChannelResult, system: System) -> Iterator[Hit]:
             "conversion.rate",
         )
     filt = s.filter
-    droop = s.band_edge_droop_db
-    if filt is None or droop is None or droop <= s.flatness_db + _TOL_DB:
+    loss = s.passband_loss_db
+    if filt is None or loss is None or not beyond(loss, s.flatness_db):
         return
     corner = flt.corner_for_droop(filt, s.band_high_hz, s.flatness_db)
     if corner is None:
         fix = f"lower the ripple to {_db(s.flatness_db)} or less"
     else:
-        after = flt.attenuation_db(flt.design(filt.family, filt.order, corner, filt.ripple_db, filt.stopband_db),
-                                   s.stop_edge_hz or s.first_alias_hz)
+        moved = flt.design(filt.family, filt.order, corner, filt.ripple_db, filt.stopband_db)
         fix = f"raise the corner to {_hz(corner)}"
-        if s.required_alias_rejection_db is not None and s.stop_edge_hz is not None:
-            fix += (f" (it then gives {_db(after)} at {_hz(s.stop_edge_hz)}, "
+        if s.required_alias_rejection_db is not None and s.alias_rejection_db is not None:
+            after = folding.alias_rejection(moved, s.rate_hz, s.band_high_hz, s.decimation,
+                                            None if s.decimation is not None else _modulator(s))
+            fix += (f" (it then rejects aliases by {_db(after.db)}, "
                     f"{_db(s.required_alias_rejection_db)} needed)")
     advice = _order_advice(s, filt.family)
+    at = s.passband_loss_at_hz if s.passband_loss_at_hz is not None else s.band_high_hz
+    place = (f"at the band top {_hz(s.band_high_hz)}" if math.isclose(at, s.band_high_hz, rel_tol=1e-9)
+             else f"at {_hz(at)}, inside the band {_hz(s.band_low_hz)} to {_hz(s.band_high_hz)}")
     yield Hit(
-        f"{_describe(filt)} loses {droop:.2f} dB at the band top {_hz(s.band_high_hz)}, "
+        f"{_describe(filt)} loses {loss:.2f} dB {place}, "
         f"{s.flatness_db:.2f} dB allowed: {fix}{', or ' + advice if advice else ''}",
         "filter.corner",
     )
+
+
+def _modulator(s: SamplingResult) -> float | None:
+    """The modulator rate of a delta-sigma input whose decimation filter is not described."""
+    return s.modulator_alias_hz + s.band_high_hz if s.modulator_alias_hz is not None else None
 
 
 @channel_rule(
