@@ -26,14 +26,14 @@ from .conftest import DEMO, MINIMAL
 
 
 def test_cd_da_payload() -> None:
-    # check-values section 6 [IEC60908]: 44.1 kHz x 16 bit x 2 channels = 1,411,200 bit/s (exact)
+    # tests/REFERENCES.md R8.1 [IEC60908]: 44.1 kHz x 16 bit x 2 channels = 1,411,200 bit/s (exact)
     assert dsp.payload_rate(44_100, 16, 2) == 1_411_200
-    # one hour = 1,411,200 x 3600 / 8 = 635,040,000 B (check-values section 6, derived)
+    # one hour = 1,411,200 x 3600 / 8 = 635,040,000 B (tests/REFERENCES.md R8.1 [DER])
     assert dsp.record_bytes(dsp.payload_rate(44_100, 16, 2), 3600) == 635_040_000
 
 
 @pytest.mark.parametrize(("bits", "container", "eff", "over"), [
-    # check-values section 6 table: N in C, efficiency N/C, overhead (C-N)/N
+    # tests/REFERENCES.md R8.2 [DER]: N in C, efficiency N/C, overhead (C-N)/N
     (12, 16, 0.75, 1 / 3), (14, 16, 0.875, 0.14286), (20, 24, 0.83333, 0.2), (18, 32, 0.5625, 0.77778),
 ])
 def test_container_efficiency(bits: int, container: int, eff: float, over: float) -> None:
@@ -42,7 +42,7 @@ def test_container_efficiency(bits: int, container: int, eff: float, over: float
 
 
 def test_packed_stream_example() -> None:
-    # check-values section 6: 8 ch, 100 kS/s, 14 b in 16 b -> payload 11.2 Mbit/s, stored 12.8 Mbit/s
+    # tests/REFERENCES.md R8.3 [DER]: 8 ch, 100 kS/s, 14 b in 16 b -> payload 11.2 Mbit/s, stored 12.8 Mbit/s
     assert dsp.payload_rate(100e3, 14, 8) == pytest.approx(11.2e6)
     assert dsp.stream_rate(100e3, 16, 8) == pytest.approx(12.8e6)
 
@@ -104,7 +104,7 @@ def test_phase_response_matches_scipy_freqs(family: str, order: int) -> None:
 
 
 def test_group_delay_dc_matches_handbook() -> None:
-    # check-values section 2 (Bessel vs Butterworth table, [WT]): tau0 x wc = 2.6131 (butter 4), 2.1139 (bessel 4)
+    # tests/REFERENCES.md R2.5 [WT], [SCIPY]: tau0 x wc = 2.6131 (butter 4), 2.1139 (bessel 4)
     wc = 2 * math.pi * 1000.0
     butter = member_filter(Filter("butterworth", 4, 1000.0))
     bessel = member_filter(Filter("bessel", 4, 1000.0))
@@ -122,7 +122,7 @@ def test_phase_difference_exact_vs_dc_estimate_near_the_corner() -> None:
     # the same difference straight from scipy.signal.freqs (unwrapped)
     assert exact == pytest.approx(_scipy_phase(a, 900.0) - _scipy_phase(b, 900.0), abs=1e-6)
     estimate = dsp.phase_difference_dc_estimate(a, b, 900.0)
-    # the Butterworth delay rises towards the corner (tau(wc)/tau0 = 1.4142, check-values table) while the
+    # the Butterworth delay rises towards the corner (tau(wc)/tau0 = 1.4142, tests/REFERENCES.md R2.5) while the
     # Bessel delay stays flat, so the DC-delay estimate reads well short of the true difference
     assert abs(estimate) < 0.75 * abs(exact)
     # far below the corner both delays are flat and the estimate is good to a few per cent

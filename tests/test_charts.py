@@ -244,7 +244,7 @@ def test_hold_envelope_and_images(demo: SystemAnalysis) -> None:
     fs, fh = r.output.rate_hz, r.output.band_high_hz
     hold = _trace(chart.figure, "hold")
     x, y = _decode(hold["x"]), _decode(hold["y"])
-    # check-values section 5 (ADI MT-017): the hold's gain at fs/2 is 20 log10(2/pi) = -3.9224 dB
+    # tests/REFERENCES.md R7.1 [MT-017]: the hold's gain at fs/2 is 20 log10(2/pi) = -3.9224 dB
     i = int(np.argmin(np.abs(x - fs / 2.0)))
     assert x[i] == pytest.approx(fs / 2.0, rel=1e-6)
     assert y[i] == pytest.approx(-3.9224, abs=1e-4)

@@ -68,7 +68,7 @@ def test_diff_two_revisions_json(repo: Path, capsys: pytest.CaptureFixture[str],
     # base: 1.536 Mbit/s + 160 bit/s; head: 512 kbit/s + 1.536 Mbit/s
     assert payload["old"] == 1_536_160 and payload["new"] == 2_048_000
     # ACC-2 inherits 48 kS/s on the same simultaneous converter: shared-rate as well; and the 10 kHz band
-    # top lies above the decimation passband 0.4535 x 16 kS/s = 7.256 kHz (check-values 2b edges, from memory)
+    # top lies above the decimation passband 0.4535 x 16 kS/s = 7.256 kHz (tests/REFERENCES.md R3 [MEM])
     assert {f["rule"] for f in d["findings"]["introduced"]} == {
         "below-nyquist", "clock-divider", "shared-rate", "band-edge-droop"}
     assert d["findings"]["resolved"] == []

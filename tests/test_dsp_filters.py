@@ -1,6 +1,6 @@
 """Analog filter design and response, checked against handbook values, closed forms and scipy.
 
-Source keys as in /work/shared/check-values.md: [WT] Williams & Taylor, Electronic Filter Design
+Source keys as in tests/REFERENCES.md: [WT] Williams & Taylor, Electronic Filter Design
 Handbook; [ZUM] Zumbahlen, Linear Circuit Design Handbook ch. 8; [SCIPY] scipy.signal computed
 independently here (freqs on the transfer function, the *ord functions); [DER] derived algebra.
 """
@@ -20,10 +20,10 @@ from generator.dsp import memo
 from generator.dsp import reconstruction as rec
 
 # ---------------------------------------------------------------------------------------------
-# Butterworth response, check-values section 2 [WT], [ZUM], [SCIPY]
+# Butterworth response, tests/REFERENCES.md R2.2 [WT], [ZUM], [SCIPY]
 # ---------------------------------------------------------------------------------------------
 
-# n: (A at 2 fc, A at 10 fc, tau0 x 2 pi fc)  -- check-values.md, Butterworth table
+# n: (A at 2 fc, A at 10 fc, tau0 x 2 pi fc)  -- tests/REFERENCES.md R2.2
 BUTTER_TABLE = {
     1: (6.9897, 20.0432, 1.0),
     2: (12.3045, 40.0004, 1.41421),
@@ -41,7 +41,7 @@ def test_butterworth_attenuation_and_dc_delay(n: int) -> None:
     a2, a10, tau_norm = BUTTER_TABLE[n]
     fc = 10e3
     filt = flt.design("butterworth", n, fc)
-    # handbook values [WT], [ZUM] via check-values.md
+    # handbook values [WT], [ZUM], tabulated in tests/REFERENCES.md R2.2
     assert_allclose(flt.attenuation_db(filt, 2 * fc), a2, rtol=1e-4)
     assert_allclose(flt.attenuation_db(filt, 10 * fc), a10, rtol=1e-4)
     # closed form A = 10 log10(1 + (f/fc)^2n) [WT]
@@ -51,7 +51,7 @@ def test_butterworth_attenuation_and_dc_delay(n: int) -> None:
 
 
 def test_butterworth_tau0_example() -> None:
-    # check-values.md: n = 4, fc = 10 kHz -> tau0 = 41.5892 us [DER]
+    # tests/REFERENCES.md R2.2 [DER]: n = 4, fc = 10 kHz -> tau0 = 41.5892 us
     assert_allclose(flt.group_delay_s(flt.design("butterworth", 4, 10e3), 0.0), 41.5892e-6, rtol=1e-5)
 
 
@@ -92,25 +92,25 @@ def test_group_delay_is_minus_phase_slope() -> None:
 
 
 # ---------------------------------------------------------------------------------------------
-# Corner definitions per family [SCIPY] and check-values gotcha (3)
+# Corner definitions per family [SCIPY], tests/REFERENCES.md R2.3
 # ---------------------------------------------------------------------------------------------
 
 @pytest.mark.parametrize("n", [2, 4, 6, 8])
 def test_bessel_corner_is_minus_3_db(n: int) -> None:
-    # check-values.md gotcha (3): with norm='mag' the corner is the -3.0103 dB point
+    # tests/REFERENCES.md R2.3 [SCIPY]: with norm='mag' the corner is the -3.0103 dB point
     filt = flt.design("bessel", n, 500.0)
     assert_allclose(flt.attenuation_db(filt, 500.0), 10 * math.log10(2), rtol=1e-6)
 
 
 def test_bessel_default_phase_norm_would_be_wrong() -> None:
-    # check-values.md: norm='phase' n = 4 gives 7.5781 dB at Wn [SCIPY]; ours must not
+    # tests/REFERENCES.md R2.3 [SCIPY]: norm='phase' n = 4 gives 7.5781 dB at Wn; ours must not
     b, a = signal.bessel(4, 1.0, analog=True)
     _, h = signal.freqs(b, a, [1.0])
     assert_allclose(-20 * np.log10(abs(h[0])), 7.5781, rtol=1e-4)
     assert abs(flt.attenuation_db(flt.design("bessel", 4, 1.0), 1.0) - 7.5781) > 4
 
 
-# n: (Bessel tau0, Bessel tau(wc)/tau0, Butter tau(wc)/tau0), in units of 1/wc: check-values 2
+# n: (Bessel tau0, Bessel tau(wc)/tau0, Butter tau(wc)/tau0), in units of 1/wc: tests/REFERENCES.md R2.5
 DELAY_TABLE = {2: (1.3617, 0.80902, 1.0), 3: (1.7557, 0.93492, 1.25), 4: (2.1139, 0.98192, 1.4142),
                6: (2.7034, 0.99929, 1.634), 8: (3.1796, 0.99999, 1.7847)}
 
@@ -143,7 +143,7 @@ def test_chebyshev2_corner_is_stopband_edge() -> None:
 
 
 # ---------------------------------------------------------------------------------------------
-# Passband droop, check-values "Passband droop at f_max" [WT], [DER]
+# Passband droop, tests/REFERENCES.md R2.4 [WT], [DER]
 # ---------------------------------------------------------------------------------------------
 
 @pytest.mark.parametrize(("n", "ratio", "droop"), [
@@ -157,7 +157,7 @@ def test_droop_table(n: int, ratio: float, droop: float) -> None:
 
 @pytest.mark.parametrize(("n", "fc"), [(4, 31998.3), (8, 25297.5)])
 def test_corner_for_droop_table(n: int, fc: float) -> None:
-    # check-values: smallest fc with droop <= 0.1 dB at 20 kHz = f / (10^(Ap/10) - 1)^(1/2n) [DER]
+    # tests/REFERENCES.md R2.4 [DER]: smallest fc with droop <= 0.1 dB at 20 kHz = f / (10^(Ap/10) - 1)^(1/2n)
     filt = flt.design("butterworth", n, 1000.0)
     corner = flt.corner_for_droop(filt, 20e3, 0.1)
     assert corner is not None
@@ -175,7 +175,7 @@ def test_frequency_for_attenuation_butterworth_closed_form() -> None:
 
 
 # ---------------------------------------------------------------------------------------------
-# Least order, check-values "Minimum order" cases A-E [WT], [ZUM], [SCIPY]
+# Least order, tests/REFERENCES.md R2.6 cases A-E [WT], [ZUM], [SCIPY]
 # ---------------------------------------------------------------------------------------------
 
 # case: (fp, fstop, Ap, As, butter n, butter wn, cheb1 n, ellip n)
@@ -204,7 +204,7 @@ def test_least_order_cases(case: str) -> None:
     fp, fs, ap, as_, n_b, wn_b, n_c, n_e = ORDER_CASES[case]
     real_b, real_c, real_e = _closed_forms(fp, fs, ap, as_)
     expect = {"butterworth": n_b, "chebyshev1": n_c, "chebyshev2": n_c, "elliptic": n_e}
-    # the closed forms and the check-values table agree [WT]
+    # the closed forms and the table of tests/REFERENCES.md R2.6 agree [WT]
     assert math.ceil(real_b) == n_b and math.ceil(real_c) == n_c and math.ceil(real_e) == n_e
     for family, n in expect.items():
         d = flt.least_order(family, fp, fs, ap, as_)
@@ -279,8 +279,9 @@ def test_bessel_least_order_by_brute_force() -> None:
 
 
 def test_least_order_exact_integer_case_f() -> None:
-    # check-values gotcha (2), case F: the real butterworth order is 4 exactly; ceil(4 + eps) = 5
-    # must not happen.  A 4th-order butterworth at 1 kHz gives 24.0993 dB at 2 kHz [WT].
+    # tests/REFERENCES.md R2.6, case F: the real butterworth order sits on 4 (3.999995 with As rounded
+    # as below); ceil(4 + eps) = 5 must not happen.  A 4th-order butterworth at 1 kHz gives 24.0993 dB
+    # at 2 kHz [WT].
     d = flt.least_order("butterworth", 1e3, 2e3, 10 * math.log10(2), 24.0993)
     assert d is not None and d.order == 4
 
@@ -304,7 +305,7 @@ def test_stop_edge_for_order_butterworth_closed_form() -> None:
 
 
 # ---------------------------------------------------------------------------------------------
-# Stages, check-values section 2c [WT], [ZUM], [SCIPY]
+# Stages, tests/REFERENCES.md R4 [WT], [ZUM], [SCIPY]
 # ---------------------------------------------------------------------------------------------
 
 STAGE_TABLE = {

@@ -1,4 +1,4 @@
-"""Image-sensor geometry and frame size, checked against the worked example in check-values.md."""
+"""Image-sensor geometry and frame size, checked against the worked example in tests/REFERENCES.md R8."""
 
 from __future__ import annotations
 
@@ -12,14 +12,14 @@ WIDTH, HEIGHT = 7.0656e-3, 5.2992e-3
 
 
 def test_pixel_pitch_and_spatial_nyquist() -> None:
-    # source: check-values.md section 6, image-sensor example (3.45 µm pitch [MEM], arithmetic [DER])
+    # source: tests/REFERENCES.md R8.4, image-sensor example (3.45 µm pitch [MEM], arithmetic [DER])
     assert_allclose(im.pixel_pitch(WIDTH, W), 3.45e-6, rtol=1e-9)
     assert_allclose(im.pixel_pitch(HEIGHT, H), 3.45e-6, rtol=1e-9)
     assert_allclose(im.spatial_nyquist(3.45e-6) / 1e3, 144.928, rtol=1e-5)  # cycles/mm
 
 
 def test_frame_bits_bytes_and_stream() -> None:
-    # source: check-values.md section 6: 37,748,736 bit = 4,718,592 B packed; 6,291,456 B in
+    # source: tests/REFERENCES.md R8.4 [DER]: 37,748,736 bit = 4,718,592 B packed; 6,291,456 B in
     # 16-bit containers; 1.13246 Gbit/s at 30 fps (exact integers where the table says so)
     packed = im.frame_bits(W, H, N)
     assert packed == 37_748_736
@@ -29,7 +29,7 @@ def test_frame_bits_bytes_and_stream() -> None:
 
 
 def test_box_aperture_at_nyquist() -> None:
-    # source: check-values.md section 5, image-sensor analogue: |sinc(f p)| = 0.63662 at 1/(2p)
+    # source: tests/REFERENCES.md R8.5 [HOL], [DER]: |sinc(f p)| = 0.63662 at 1/(2p)
     p = 3.45e-6
     assert_allclose(im.box_aperture_mtf(im.spatial_nyquist(p), p), 0.63662, rtol=1e-5)
 

@@ -1,9 +1,10 @@
 """Quantization, jitter and noise-budget numerics against published values and a numpy simulation.
 
-Expected values come from /work/shared/check-values.md (sections 3, 4 and 7); the source key
-of each table is named beside its check: [MT-001], [MT-003], [MT-007], [AN-756] are Analog
-Devices tutorials / app notes, [1241] IEEE Std 1241-2010, [JN] Johnson and Nyquist 1928,
-[RAZ] Razavi (kT/C), [AES17] dBFS, [DER] derived algebra, [NP] numpy computation.
+Expected values come from tests/REFERENCES.md (R5 quantization, R6 jitter and noise sums, R9
+thermal noise and dB levels); the source key of each table is named beside its check: [MT-001],
+[MT-003], [MT-007], [AN-756] are Analog Devices tutorials / app notes, [1241] IEEE Std 1241-2010,
+[JN] Johnson and Nyquist 1928, [RAZ] Razavi (kT/C), [AES17] dBFS, [DER] derived algebra, [NP] numpy
+computation.
 """
 
 from __future__ import annotations
@@ -32,7 +33,7 @@ LSB_TABLE = [
 
 @pytest.mark.parametrize(("fsr", "bits", "lsb", "noise", "end_point"), LSB_TABLE)
 def test_lsb_and_quantization_noise(fsr: float, bits: int, lsb: float, noise: float, end_point: float) -> None:
-    # check-values.md section 3, LSB table, sources [1241], [MT-001]
+    # tests/REFERENCES.md R5.1 [1241], [MT-001]: LSB, q / sqrt(12) and the 2^N - 1 convention
     assert_allclose(q.lsb(fsr, bits), lsb, rtol=RTOL)
     assert_allclose(q.quantization_noise_rms(q.lsb(fsr, bits)), noise, rtol=RTOL)
     assert_allclose(q.lsb_end_point(fsr, bits), end_point, rtol=1e-6)
@@ -59,14 +60,14 @@ SQNR_TABLE = [
 
 @pytest.mark.parametrize(("bits", "rounded", "exact", "diff"), SQNR_TABLE)
 def test_sqnr_uses_exact_constants(bits: int, rounded: float, exact: float, diff: float) -> None:
-    # check-values.md section 3, SQNR table, source [MT-001]
+    # tests/REFERENCES.md R5.2 [MT-001]: SQNR with exact constants against the rounded 6.02N + 1.76
     assert_allclose(q.sqnr_db(bits), exact, rtol=RTOL)
     # the exact form sits above the rounded handbook value by the tabulated difference
     assert_allclose(q.sqnr_db(bits) - rounded, diff, atol=2e-4)
 
 
 def test_exact_constants() -> None:
-    # check-values.md section 3: 20 log10 2 = 6.0206 dB/bit, 10 log10 1.5 = 1.760913 dB [MT-001]
+    # tests/REFERENCES.md R5.2 [MT-001]: 20 log10 2 = 6.0206 dB/bit, 10 log10 1.5 = 1.760913 dB
     assert_allclose(q.DB_PER_BIT, 6.0206, rtol=1e-5)
     assert_allclose(q.SINE_LOADING_DB, 1.760913, rtol=1e-6)
 
@@ -79,12 +80,12 @@ ENOB_TABLE = [(70.0, 11.334), (74.0, 11.999), (92.0, 14.988), (98.0, 15.985)]
 
 @pytest.mark.parametrize(("sinad", "bits"), ENOB_TABLE)
 def test_enob(sinad: float, bits: float) -> None:
-    # check-values.md section 3, ENOB table (exact-constants column), source [MT-003]
+    # tests/REFERENCES.md R5.3 [MT-003]: ENOB with the exact constants
     assert_allclose(q.enob(sinad), bits, atol=6e-4)
 
 
 def test_enob_below_full_scale() -> None:
-    # check-values.md section 3: 68 dB at -1 dBFS -> SINAD referred to full scale 69 dB -> 11.168 [MT-003]
+    # tests/REFERENCES.md R5.3 [MT-003]: 68 dB at -1 dBFS -> SINAD referred to full scale 69 dB -> 11.168
     assert_allclose(q.enob(68.0 + 1.0), 11.168, atol=6e-4)
 
 
@@ -107,13 +108,13 @@ PG_TABLE = [
 
 @pytest.mark.parametrize(("rate", "bw", "gain_db", "gain_bits"), PG_TABLE)
 def test_processing_gain(rate: float, bw: float, gain_db: float, gain_bits: float) -> None:
-    # check-values.md section 3, processing-gain table, source [MT-001]
+    # tests/REFERENCES.md R5.4 [MT-001]: processing gain in dB and in bits
     assert_allclose(q.processing_gain_db(rate, bw), gain_db, rtol=2e-4)
     assert_allclose(q.processing_gain_db(rate, bw) / q.DB_PER_BIT, gain_bits, rtol=5e-4)
 
 
 def test_noise_density_example() -> None:
-    # check-values.md section 3: FSR 20 V, N = 16, fs = 100 kS/s -> 393.98 nV/rtHz = -145.08 dBFS/Hz [MT-001], [DER]
+    # tests/REFERENCES.md R5.5 [MT-001], [DER]: FSR 20 V, N = 16, fs = 100 kS/s -> 393.98 nV/rtHz = -145.08 dBFS/Hz
     density = q.quantization_noise_density(q.lsb(20.0, 16), 100e3)
     assert_allclose(density, 393.98e-9, rtol=RTOL)
     assert_allclose(q.dbfs(density, 20.0), -145.08, atol=0.005)
@@ -135,12 +136,12 @@ JITTER_TABLE = [
 
 @pytest.mark.parametrize(("f", "tj", "snr"), JITTER_TABLE)
 def test_jitter_snr(f: float, tj: float, snr: float) -> None:
-    # check-values.md section 4, jitter table, sources [MT-007], [AN-756]
+    # tests/REFERENCES.md R6.1 [MT-007], [AN-756]: SNR limited by aperture jitter
     assert_allclose(q.jitter_snr_db(f, tj), snr, rtol=RTOL)
 
 
 def test_max_jitter_for_16_bits() -> None:
-    # check-values.md section 4: SNR 98.0905 dB at 20 kHz -> 99.144 ps [DER] from [MT-007]
+    # tests/REFERENCES.md R6.2 [DER] from [MT-007]: SNR 98.0905 dB at 20 kHz -> 99.144 ps
     assert_allclose(q.max_jitter(98.0905, 20e3), 99.144e-12, rtol=RTOL)
     assert_allclose(q.jitter_snr_db(20e3, q.max_jitter(98.0905, 20e3)), 98.0905, rtol=1e-12)
 
@@ -164,7 +165,7 @@ POWER_SUM_TABLE = [
 
 @pytest.mark.parametrize(("parts", "total"), POWER_SUM_TABLE)
 def test_power_sum(parts: tuple[float, ...], total: float) -> None:
-    # check-values.md section 4, power-sum table, sources [MT-003], [AN-756]
+    # tests/REFERENCES.md R6.3 [MT-003], [AN-756]: power sum of independent noise
     assert_allclose(q.power_sum_snr_db(parts), total, rtol=RTOL)
 
 
@@ -189,24 +190,24 @@ THERMAL_TABLE = [
 
 @pytest.mark.parametrize(("r", "b", "t", "v", "level"), THERMAL_TABLE)
 def test_thermal_noise(r: float, b: float, t: float, v: float, level: float) -> None:
-    # check-values.md section 7, Johnson noise table, sources [JN], [SI]
+    # tests/REFERENCES.md R9.1 [JN], [SI]: Johnson noise and its level in dBV
     assert_allclose(q.thermal_noise_rms(r, b, t), v, rtol=RTOL)
     assert_allclose(q.dbv(q.thermal_noise_rms(r, b, t)), level, atol=0.01)
 
 
 def test_thermal_density_times_root_bandwidth() -> None:
-    # check-values.md section 7: 4.0704 nV/rtHz over 20 kHz is the 575.64 nV of the first row [JN], [DER]
+    # tests/REFERENCES.md R9.1 [JN], [DER]: 4.0704 nV/rtHz over 20 kHz is the 575.64 nV of the first row
     assert_allclose(q.noise_from_density(4.0704e-9, 20e3), 575.64e-9, rtol=RTOL)
 
 
 @pytest.mark.parametrize(("c", "v"), [(1e-12, 64.358e-6), (10e-12, 20.352e-6), (100e-12, 6.4358e-6)])
 def test_ktc_noise(c: float, v: float) -> None:
-    # check-values.md section 7: kT/C at 300 K, source [RAZ]
+    # tests/REFERENCES.md R9.2 [RAZ]: kT/C at 300 K
     assert_allclose(q.ktc_noise_rms(c, 300.0), v, rtol=RTOL)
 
 
 def test_full_scale_sine_levels() -> None:
-    # check-values.md section 7: 0 dBFS of a ±10 V ADC is 7.0711 V rms = 16.99 dBV [AES17], [DER]
+    # tests/REFERENCES.md R9.3 [AES17], [DER]: 0 dBFS of a ±10 V ADC is 7.0711 V rms = 16.99 dBV
     rms = q.sine_rms(10.0)
     assert_allclose(rms, 7.0711, rtol=RTOL)
     assert_allclose(q.dbv(rms), 16.99, atol=0.005)
@@ -228,7 +229,7 @@ def test_bits_for_lsb() -> None:
 def _quantize_sine_snr(bits: int) -> float:
     """Measured SNR of a full-scale sine through an ideal mid-rise quantizer.
 
-    As in check-values.md section 3 [NP]: code = floor(x / q) clipped to [-2^(N-1), 2^(N-1) - 1],
+    As in tests/REFERENCES.md R5.6 [NP]: code = floor(x / q) clipped to [-2^(N-1), 2^(N-1) - 1],
     output (code + 0.5) q; coherent sampling, 65536 points, 1031 cycles (prime), phase 0.1 rad;
     SNR = 10 log10(P_x / P_err) in the time domain.
     """
@@ -244,20 +245,20 @@ def _quantize_sine_snr(bits: int) -> float:
 @pytest.mark.parametrize("bits", [8, 12, 16, 20])
 def test_simulated_sqnr_matches_formula(bits: int) -> None:
     # numpy simulation [NP] against SQNR = 6.0206 N + 1.7609 dB [MT-001]; tolerance 0.25 dB for N >= 8
-    # as check-values.md section 3 suggests (largest deviation there 0.139 dB)
+    # (tests/REFERENCES.md R5.6: the largest deviation for these N is 0.139 dB)
     measured = _quantize_sine_snr(bits)
     assert abs(measured - q.sqnr_db(bits)) < 0.25, (bits, measured)
 
 
 @pytest.mark.parametrize(("bits", "table"), [(8, 49.787), (12, 73.972), (16, 98.059), (20, 122.17)])
 def test_simulation_reproduces_published_run(bits: int, table: float) -> None:
-    # check-values.md section 3, simulation table, 'time SNR' column [NP]: same quantizer, same record
+    # tests/REFERENCES.md R5.6 [NP], time-domain SNR: same quantizer, same record
     assert abs(_quantize_sine_snr(bits) - table) < 0.006
 
 
 def test_simulated_sinad_and_enob_by_fft() -> None:
     # numpy simulation [NP]: FFT SINAD (bin 1031 against all bins but DC) for N = 12 is 73.974 dB in
-    # check-values.md section 3, ENOB 12 [MT-003]
+    # tests/REFERENCES.md R5.6, ENOB 12 by R5.3 [MT-003]
     n_points, cycles, bits = 65536, 1031, 12
     step = q.lsb(2.0, bits)
     t = np.arange(n_points)
@@ -272,5 +273,5 @@ def test_simulated_sinad_and_enob_by_fft() -> None:
 def test_power_sum_survives_contributions_beyond_float_range() -> None:
     # -10 log10(10^(1e4/10) + 10^(-9.8)) = -1e4 dB to double precision (algebra: the larger term dominates)
     assert q.power_sum_snr_db([-1e4, 98.0]) == pytest.approx(-1e4, rel=1e-12)
-    # and the ordinary case still matches check-values section 4: 74 + 74 -> 70.9897 dB [MT-003]
+    # and the ordinary case still matches tests/REFERENCES.md R6.3 [MT-003]: 74 + 74 -> 70.9897 dB
     assert q.power_sum_snr_db([74.0, 74.0]) == pytest.approx(70.9897, rel=1e-5)

@@ -9,7 +9,7 @@ from numpy.testing import assert_allclose
 from generator.dsp import quantization
 from generator.dsp import reconstruction as rec
 
-# check-values.md section 5, ZOH droop table: |sinc(f/fs)| and 20 log10 of it [MT-017], [OS], [NP].
+# tests/REFERENCES.md R7.1 [MT-017], [OS], [NP]: hold droop |sinc(f/fs)| and 20 log10 of it.
 DROOP_TABLE = [
     # (f, fs, gain, droop dB)
     (0.5, 1.0, 0.63662, -3.9224),  # fs/2
@@ -24,7 +24,7 @@ DROOP_TABLE = [
 
 @pytest.mark.parametrize(("f", "fs", "gain", "droop"), DROOP_TABLE)
 def test_hold_droop_table(f: float, fs: float, gain: float, droop: float) -> None:
-    # source: check-values.md section 5 (ADI MT-017; Oppenheim & Schafer ch. 4), rel. tol. 1e-4
+    # source: tests/REFERENCES.md R7.1 [MT-017], [OS], rel. tol. 1e-4
     assert_allclose(rec.hold_gain(f, fs), gain, rtol=1e-4)
     assert_allclose(rec.hold_droop_db(f, fs), droop, rtol=1e-4)
 
@@ -34,7 +34,7 @@ def test_hold_gain_at_nyquist_is_two_over_pi() -> None:
     assert_allclose(rec.hold_gain(24e3, 48e3), 2 / np.pi, rtol=1e-12)
 
 
-# check-values.md section 5, images table [MT-017], [DER]: images k fs +/- f for k = 1, 2 (kHz),
+# tests/REFERENCES.md R7.2 [MT-017], [DER]: images k fs +/- f for k = 1, 2 (kHz),
 # first image relative to the tone after the hold, and the filter needed for the 16-bit floor.
 IMAGE_TABLE = [
     (20e3, 44.1e3, [24.1, 64.1, 68.2, 108.2], -1.6197, 96.471),
@@ -46,7 +46,7 @@ IMAGE_TABLE = [
 
 @pytest.mark.parametrize(("f", "fs", "images_khz", "level", "needed"), IMAGE_TABLE)
 def test_images_and_their_level(f: float, fs: float, images_khz: list[float], level: float, needed: float) -> None:
-    # source: check-values.md section 5 (ADI MT-017; derived there), rel. tol. 1e-4
+    # source: tests/REFERENCES.md R7.2 [MT-017], [DER], rel. tol. 1e-4
     assert_allclose(np.array(rec.image_frequencies(f, fs)) / 1e3, images_khz, rtol=1e-9)
     assert rec.first_image(f, fs) == pytest.approx(images_khz[0] * 1e3)
     assert_allclose(rec.image_level_after_hold_db(f, fs), level, rtol=1e-4)
@@ -62,7 +62,7 @@ def test_image_level_equals_ratio_of_two_sincs() -> None:
 
 
 def test_dac_floor_is_exact_sqnr() -> None:
-    # source: check-values.md section 3, exact 20 log10(2^N sqrt(1.5)) column [MT-001]
+    # source: tests/REFERENCES.md R5.2 [MT-001], exact 20 log10(2^N sqrt(1.5))
     assert_allclose(quantization.sqnr_db(16), 98.0905, rtol=1e-5)
     assert_allclose(quantization.sqnr_db(12), 74.0081, rtol=1e-5)
 
@@ -87,7 +87,7 @@ def test_compensated_droop_is_zero_for_ideal_correction() -> None:
 
 
 def test_max_hold_fraction_inverts_the_droop_table() -> None:
-    # source: check-values.md section 5: 0.25 fs loses 0.9121 dB, 0.1 fs 0.14335 dB
+    # source: tests/REFERENCES.md R7.1 [MT-017], [DER]: 0.25 fs loses 0.9121 dB, 0.1 fs 0.14335 dB
     assert_allclose(rec.max_hold_fraction(0.9121), 0.25, rtol=1e-4)
     assert_allclose(rec.max_hold_fraction(0.14335), 0.1, rtol=1e-4)
     assert_allclose(rec.min_rate_for_droop(20e3, 2.6399), 48e3, rtol=1e-4)

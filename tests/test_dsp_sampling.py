@@ -1,6 +1,6 @@
 """Sampling numerics: folding, zones, SQNR, dBFS and the delta-sigma decimation model.
 
-Source keys as in /work/shared/check-values.md: [OS] Oppenheim & Schafer ch. 4; [MT-001],
+Source keys as in tests/REFERENCES.md: [OS] Oppenheim & Schafer ch. 4; [MT-001],
 [MT-002] Analog Devices tutorials; [NP] a numpy simulation here; [WT] Williams & Taylor;
 [AES17] dBFS; [DER] derived; [MEM] typical delta-sigma filter edges, from memory.
 """
@@ -17,7 +17,7 @@ from generator.dsp import filters as flt
 from generator.dsp import quantization
 from generator.dsp import sampling as dsp
 
-# f, fs, zone, inverted, f_a  -- check-values.md section 1, fold table [OS], [MT-002]
+# f, fs, zone, inverted, f_a  -- tests/REFERENCES.md R1.2 [OS], [MT-002]
 FOLDS = [
     (7e3, 10e3, 2, True, 3e3),
     (9.9e3, 10e3, 2, True, 100.0),
@@ -56,7 +56,7 @@ def test_fold_keeps_precision_many_zones_up() -> None:
 
 
 def test_nyquist_and_first_alias() -> None:
-    # check-values section 2: fs - f_max = 28 kHz and 31.2 kHz [MT-002]; f_N = fs / 2 [SH]
+    # tests/REFERENCES.md R2.1 [MT-002]: fs - f_max = 28 kHz and 31.2 kHz; R1.1 [SH]: f_N = fs / 2
     assert dsp.first_alias(48e3, 20e3) == 28e3
     assert_allclose(dsp.first_alias(51.2e3, 20e3), 31.2e3)
     assert dsp.nyquist_frequency(48e3) == 24e3
@@ -64,7 +64,7 @@ def test_nyquist_and_first_alias() -> None:
 
 @pytest.mark.parametrize(("bits", "sqnr"), [(8, 49.9257), (12, 74.0081), (16, 98.0905), (24, 146.255)])
 def test_sqnr_exact_constants(bits: int, sqnr: float) -> None:
-    # check-values section 3: 20 log10(2^N sqrt(1.5)) [MT-001]
+    # tests/REFERENCES.md R5.2 [MT-001]: 20 log10(2^N sqrt(1.5))
     assert_allclose(quantization.sqnr_db(bits), sqnr, rtol=1e-5)
 
 
@@ -76,7 +76,7 @@ def test_level_dbfs_is_sine_referenced() -> None:
 
 
 # ---------------------------------------------------------------------------------------------
-# Delta-sigma, check-values section 2b [DER], [MEM], [WT]
+# Delta-sigma, tests/REFERENCES.md R3 [DER], [MEM], [WT]
 # ---------------------------------------------------------------------------------------------
 
 def test_delta_sigma_rates_and_digital_edges() -> None:
@@ -98,6 +98,6 @@ def test_delta_sigma_rates_and_digital_edges() -> None:
 
 @pytest.mark.parametrize(("order", "corner", "atten"), [(1, 100e3, 35.742), (2, 100e3, 71.481), (1, 50e3, 41.762)])
 def test_delta_sigma_analog_filter_at_modulator_alias(order: int, corner: float, atten: float) -> None:
-    # check-values section 2b: RC and 2nd-order butterworth at 6.124 MHz [WT]
+    # tests/REFERENCES.md R3 [WT]: RC and 2nd-order butterworth at 6.124 MHz
     filt = flt.design("butterworth", order, corner)
     assert_allclose(flt.attenuation_db(filt, 6.124e6), atten, rtol=1e-4)

@@ -25,7 +25,7 @@ GOLDEN = DATA / "propose"
 
 # ------------------------------------------------------------------------------ stage tables
 
-# The stage tables themselves are checked against check-values.md section 2c in test_dsp_filters.py.
+# The stage tables themselves are checked against tests/REFERENCES.md R4 in test_dsp_filters.py.
 
 
 def test_stage_table_against_scipy_poles_for_chebyshev1() -> None:

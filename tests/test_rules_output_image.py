@@ -74,12 +74,12 @@ container_bits = 16
     [(1, 6.9897), (2, 12.3045), (3, 18.1291), (4, 24.0993), (5, 30.1072), (6, 36.1247), (7, 42.1445), (8, 48.1649)],
 )
 def test_butterworth_loss_at_twice_the_corner(order: int, at_2fc: float) -> None:
-    # source: check-values.md section 2, Butterworth A at 2fc = 10 log10(1 + 4^n) [WT], [SCIPY]
+    # source: tests/REFERENCES.md R2.2 [WT], [SCIPY]: Butterworth A at 2fc = 10 log10(1 + 4^n)
     assert_allclose(filter_loss_db(Filter("butterworth", order, 10e3), 20e3), at_2fc, rtol=1e-4)
 
 
 def test_corner_definitions_per_family() -> None:
-    # source: check-values.md section 2: bessel with norm='mag' is 3.0103 dB down at its corner;
+    # source: tests/REFERENCES.md R2.3: bessel with norm='mag' is 3.0103 dB down at its corner;
     # chebyshev1/elliptic corners are the ripple-band edge, chebyshev2's the stopband edge [SCIPY]
     assert_allclose(filter_loss_db(Filter("bessel", 4, 1e3), 1e3), 3.0103, rtol=1e-4)
     assert_allclose(filter_loss_db(Filter("chebyshev1", 5, 1e3, ripple_db=0.5), 1e3), 0.5, rtol=1e-4)
@@ -97,11 +97,11 @@ def test_demo_outputs_and_camera_carry_their_figures() -> None:
     # ADI MT-017: 20 log10|sinc(2 kHz / 12.8 kHz)|, numpy.sinc as the reference
     assert_allclose(shk["zoh_droop_db"], 20 * np.log10(np.sinc(2e3 / 12.8e3)), rtol=1e-12)
     assert shk["first_image_hz"] == pytest.approx(10.8e3)
-    # derived in check-values.md section 5: hold puts the image 20 log10(f/(fs - f)) below the tone
+    # tests/REFERENCES.md R7.2 [DER]: hold puts the image 20 log10(f/(fs - f)) below the tone
     assert_allclose(shk["hold_image_attenuation_db"], 20 * np.log10(10.8e3 / 2e3), rtol=1e-12)
     # [WT] Butterworth: 10 log10(1 + (f/fc)^(2n)), n = 4, fc = 4 kHz
     assert_allclose(shk["filter_image_attenuation_db"], 10 * np.log10(1 + (10.8 / 4) ** 8), rtol=1e-6)
-    assert_allclose(shk["filter_droop_db"], 10 * np.log10(1 + 0.5**8), rtol=1e-6)  # 0.016932, check-values §2
+    assert_allclose(shk["filter_droop_db"], 10 * np.log10(1 + 0.5**8), rtol=1e-6)  # 0.016932, REFERENCES.md R2.4
     total = shk["hold_image_attenuation_db"] + shk["filter_image_attenuation_db"]
     assert shk["image_rejection_db"] == pytest.approx(total)
     assert shk["output_peak_volts"] == pytest.approx(100.0)  # ±10 V x 20 dB (x10)
@@ -124,10 +124,10 @@ def test_hold_none_and_sinc_compensation(minimal_tree: Path) -> None:
     assert none["zoh_droop_db"] is None and none["hold_image_attenuation_db"] == 0.0
     comp = analysis.result("OUT-COMP").figures
     assert comp["zoh_droop_db"] == 0.0  # ideal inverse-sinc correction leaves no residual (MT-017)
-    # check-values.md section 5: 20 kHz @ 48 kHz loses 2.6399 dB before correction; image -2.9226 dB
+    # tests/REFERENCES.md R7.1, R7.2: 20 kHz @ 48 kHz loses 2.6399 dB before correction; image -2.9226 dB
     assert_allclose(comp["zoh_droop_uncorrected_db"], -2.6399, rtol=1e-4)
     assert_allclose(comp["hold_image_attenuation_db"], 2.9226, rtol=1e-4)
-    # default target: the 16-bit DAC's floor, 98.0905 dB (check-values.md section 3, exact constants)
+    # default target: the 16-bit DAC's floor, 98.0905 dB (tests/REFERENCES.md R5.2, exact constants)
     assert_allclose(comp["required_image_rejection_db"], 98.0905, rtol=1e-5)
 
 
@@ -135,7 +135,7 @@ def test_hold_none_and_sinc_compensation(minimal_tree: Path) -> None:
 
 
 def test_zoh_droop_fires_and_its_fix_works(minimal_tree: Path) -> None:
-    # check-values.md section 5: 20 kHz at 48 kHz loses 2.6399 dB, more than the default 0.5 dB
+    # tests/REFERENCES.md R7.1: 20 kHz at 48 kHz loses 2.6399 dB, more than the default 0.5 dB
     _write(minimal_tree, "OUT-1", _output())
     _, found = _check(minimal_tree, "zoh-droop")
     assert [f.channels for f in found] == [("OUT-1",)]
@@ -149,12 +149,12 @@ def test_zoh_droop_fires_and_its_fix_works(minimal_tree: Path) -> None:
 
 def test_zoh_droop_silent_when_compensated_or_oversampled(minimal_tree: Path) -> None:
     _write(minimal_tree, "OUT-1", _output(extra_conv="sinc_compensation = true"))
-    _write(minimal_tree, "OUT-2", _output("2 kHz"))  # 0.0236 dB at 2 kHz / 48 kHz
+    _write(minimal_tree, "OUT-2", _output("2 kHz"))  # 0.0248 dB at 2 kHz / 48 kHz
     assert _check(minimal_tree, "zoh-droop")[1] == []
 
 
 def test_zoh_droop_counts_the_filter_too(minimal_tree: Path) -> None:
-    # hold 0.0236 dB + butterworth n=4 at f/fc = 0.8: 0.67358 dB (check-values.md section 2) > 0.5 dB
+    # hold 0.0248 dB + butterworth n=4 at f/fc = 0.8: 0.67358 dB (tests/REFERENCES.md R2.4) > 0.5 dB
     filt = '[filter]\nfamily = "butterworth"\norder = 4\ncorner = "2.5 kHz"'
     _write(minimal_tree, "OUT-1", _output("2 kHz", filt=filt))
     _, found = _check(minimal_tree, "zoh-droop")
@@ -167,7 +167,7 @@ def test_demo_zoh_droop_fires_on_shaker_and_is_waived() -> None:
 
 
 def test_image_rejection_fires_without_filter(minimal_tree: Path) -> None:
-    # hold alone: 2.9226 dB at 28 kHz (check-values.md section 5) against 60 dB required
+    # hold alone: 2.9226 dB at 28 kHz (tests/REFERENCES.md R7.2) against 60 dB required
     text = _output(extra_signal='image_rejection = "60 dB"', extra_conv="sinc_compensation = true")
     _write(minimal_tree, "OUT-1", text)
     _, found = _check(minimal_tree, "image-rejection")
@@ -177,7 +177,7 @@ def test_image_rejection_fires_without_filter(minimal_tree: Path) -> None:
 
 
 def test_image_rejection_passes_with_steep_filter(minimal_tree: Path) -> None:
-    # hold 33.442 dB at 47 kHz (check-values.md section 5) + butterworth n=4 at 4 kHz:
+    # hold 33.442 dB at 47 kHz (tests/REFERENCES.md R7.2) + butterworth n=4 at 4 kHz:
     # 10 log10(1 + 11.75^8) = 85.6 dB [WT]: 119 dB >= 60 dB
     filt = '[filter]\nfamily = "butterworth"\norder = 4\ncorner = "4 kHz"'
     _write(minimal_tree, "OUT-1", _output("1 kHz", extra_signal='image_rejection = "60 dB"', filt=filt))
@@ -206,7 +206,7 @@ def test_output_overrange(minimal_tree: Path) -> None:
 
 
 def test_spatial_nyquist(minimal_tree: Path) -> None:
-    # check-values.md section 6: 3.45 µm pitch -> 144.928 cycles/mm
+    # tests/REFERENCES.md R8.4: 3.45 µm pitch -> 144.928 cycles/mm
     area = '["7.0656 mm", "5.2992 mm"]'
     _write(minimal_tree, "CAM-1", _image("[2048, 1536]", area, 'detail = "150 cycles/mm"'))
     _write(minimal_tree, "CAM-2", _image("[2048, 1536]", area, 'detail = "140 cycles/mm"'))

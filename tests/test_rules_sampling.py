@@ -4,7 +4,7 @@ Fixtures live in tests/data/rules/sampling/<case>/ (laid over tests/data/minimal
 expected.txt lists ``fires RULE CHANNEL`` or ``silent RULE CHANNEL`` and ``msg <fragment>``
 lines.  The numbers in the fragments come from outside the project: butterworth loss
 10 log10(1 + (f/fc)^2n) [WT, Williams & Taylor], fold f_a = |f - fs round(f/fs)| [OS],
-sine-referenced dBFS [AES17], the 2b delta-sigma values of check-values.md.
+sine-referenced dBFS [AES17], the delta-sigma values of tests/REFERENCES.md R3.
 """
 
 from __future__ import annotations
@@ -89,7 +89,7 @@ def test_required_rejection_uses_peak_and_out_of_band(tmp_path: Path) -> None:
     assert s is not None and s.required_alias_rejection_db is not None
     assert_allclose(s.required_alias_rejection_db, 90 - 20 - 20 * math.log10(0.5), rtol=1e-12)
     # without snr the floor is the quantization floor of the 24-bit converter, 6.0206 N + 1.7609 dB
-    # [MT-001]: 146.255 dB (check-values section 3); out_of_band defaults to 0 dBFS
+    # [MT-001]: 146.255 dB (tests/REFERENCES.md R5.2, R2.1); out_of_band defaults to 0 dBFS
     tree = overlay(DATA / "rules" / "sampling" / "filter-missing-pass", tmp_path / "s")
     acc_file = tree / "channels" / "ACC-1.md"
     acc_file.write_text(acc_file.read_text().replace('snr = "90 dB"\n', "").replace('out_of_band = "-20 dBFS"\n', ""))
@@ -102,7 +102,7 @@ def test_required_rejection_uses_peak_and_out_of_band(tmp_path: Path) -> None:
 def test_delta_sigma_sources(tmp_path: Path) -> None:
     s = _result("alias-rejection-modulator-fail", tmp_path)
     assert s.alias_rejection_source == "analog filter"
-    # RC at 100 kHz, at 6.144 MHz - 20 kHz: 35.742 dB (check-values 2b) [WT]
+    # RC at 100 kHz, at 6.144 MHz - 20 kHz: 35.742 dB (tests/REFERENCES.md R3) [WT]
     assert_allclose(s.alias_rejection_db, 35.742, rtol=1e-4)
     t = _result("alias-rejection-digital-pass", tmp_path)
     assert t.alias_rejection_source == "digital decimation filter"
@@ -127,7 +127,7 @@ def test_demo_carries_the_figures_and_warns_where_expected() -> None:
     for c in inputs:
         assert keys <= set(c["figures"]), c["id"]
     tacho = next(c for c in inputs if c["id"] == "TACHO-HSS")
-    # 4th-order butterworth, f/fc = 0.8: 0.67358 dB (check-values droop table) [WT]
+    # 4th-order butterworth, f/fc = 0.8: 0.67358 dB (tests/REFERENCES.md R2.4) [WT]
     assert_allclose(tacho["figures"]["band_edge_droop_db"], 0.67358, rtol=1e-4)
     droop = [f for f in doc["findings"] if f["rule"] == "band-edge-droop"]
     assert [f["channels"] for f in droop] == [["TACHO-HSS"]]

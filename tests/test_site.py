@@ -211,7 +211,7 @@ def test_folding_chart_places_tones_where_they_fold(tmp_path: Path) -> None:
     traces = {t["name"]: t for t in chart.figure["data"]}
     landed = traces["where it lands after sampling"]
     xs = np.frombuffer(base64.b64decode(landed["x"]["bdata"]), dtype="<f8")
-    # check-values table (Oppenheim & Schafer ch. 4, ADI MT-002): 7 kHz at 10 kS/s -> 3 kHz;
+    # tests/REFERENCES.md R1.2 [OS], [MT-002]: 7 kHz at 10 kS/s -> 3 kHz;
     # 15 kHz at 10 kS/s -> 5 kHz (zone 4, inverted)
     np.testing.assert_allclose(xs, [3000.0, 5000.0], rtol=1e-12)
     before = traces["interference tone (before the filter)"]

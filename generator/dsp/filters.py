@@ -260,7 +260,7 @@ def group_delay_s(filt: AnalogFilter, f_hz: float | NDArray[np.float64]) -> floa
 
     From the poles p = s + j w_p: tau(w) = sum -s / ((w - w_p)^2 + s^2), minus the same sum over
     zeros off the imaginary axis (zeros on it add none) [DER from pole positions, as in
-    check-values]; DC value for butterworth: 1 / (2 pi fc sin(pi / 2n)).
+    tests/REFERENCES.md R2.5]; DC value for butterworth: 1 / (2 pi fc sin(pi / 2n)) (R2.2).
     """
     z, p, _ = _normalised(filt)
     x = np.asarray(f_hz, dtype=np.float64) / filt.corner_hz
