@@ -106,7 +106,7 @@ class Proposal:
     design: Design | None
     explanation: str  # one line: the choice, or why there is none
     unfixable: tuple[str, ...] = ()  # requirements no rate or filter can meet, with the shortfall
-    edits: tuple[tuple[str, str], ...] = ()  # ("conversion.rate", '"48 kS/s"'), in file order of keys
+    edits: tuple[tuple[str, str | None], ...] = ()  # ("conversion.rate", '"48 kS/s"'); None: remove the key
     fixes: tuple[str, ...] = ()  # rules with findings now that the design clears
     stages: tuple[flt.Stage, ...] = ()
 
@@ -388,8 +388,8 @@ def candidates(spec: Spec, channel: Channel, rules: Sequence[str],
     return out
 
 
-def _edits(channel: Channel, d: Design) -> tuple[tuple[str, str], ...]:
-    out: list[tuple[str, str]] = []
+def _edits(channel: Channel, d: Design) -> tuple[tuple[str, str | None], ...]:
+    out: list[tuple[str, str | None]] = []
     if channel.conversion.rate is None or not math.isclose(channel.conversion.rate, d.rate_hz, rel_tol=1e-9):
         out.append(("conversion.rate", f'"{_exact_text(d.rate_hz, "S/s")}"'))
     cur = channel.filter
@@ -403,6 +403,11 @@ def _edits(channel: Channel, d: Design) -> tuple[tuple[str, str], ...]:
         out.append(("filter.ripple", f'"{d.ripple_db:.10g} dB"'))
     if d.family in ("chebyshev2", "elliptic") and (cur is None or cur.stopband_db != d.stopband_db):
         out.append(("filter.stopband_attenuation", f'"{d.stopband_db:.10g} dB"'))
+    # a key the new family has no use for would make the file refuse to load: it goes
+    if d.family not in ("chebyshev1", "elliptic") and "filter.ripple" in channel.lines:
+        out.append(("filter.ripple", None))
+    if d.family not in ("chebyshev2", "elliptic") and "filter.stopband_attenuation" in channel.lines:
+        out.append(("filter.stopband_attenuation", None))
     return tuple(out)
 
 
@@ -550,13 +555,13 @@ _FILTER_KEY_ORDER = ("family", "order", "corner", "ripple", "stopband_attenuatio
 _VALUE = re.compile(r'^(\s*[A-Za-z0-9_\-"\'.]+\s*=\s*)("(?:[^"\\]|\\.)*"|\'[^\']*\'|[^\s#]+)(.*)$')
 
 
-def edit_header(text: str, edits: Sequence[tuple[str, str]]) -> str:
+def edit_header(text: str, edits: Sequence[tuple[str, str | None]]) -> str:
     """The channel file ``text`` with each (key path, TOML value) of ``edits`` set in place.
 
     An existing key keeps its line, indentation and trailing comment, with only its value
     replaced; a missing key is inserted after the last key of its table; a missing table is
-    added at the end of the header.  Every other byte is kept.  Raises SpecError (from
-    :func:`generator.load.split_header`) when the file has no header.
+    added at the end of the header; a value of None removes the key's line.  Every other byte is
+    kept.  Raises SpecError (from :func:`generator.load.split_header`) when the file has no header.
     """
     first, header, _ = split_header(text)
     lines = text.split("\n")
@@ -564,8 +569,13 @@ def edit_header(text: str, edits: Sequence[tuple[str, str]]) -> str:
     header_last = first - 1 + len(header.split("\n"))  # 1-based line of the header's last line
     inserts: dict[int, list[str]] = {}  # after 1-based line -> new lines
     new_tables: dict[str, list[str]] = {}
+    removed: set[int] = set()
     for path, value in edits:
         table, key = path.rsplit(".", 1)
+        if value is None:
+            if path in places:
+                removed.add(places[path][0] - 1)
+            continue
         if path in places:
             i = places[path][0] - 1
             m = _VALUE.match(lines[i])
@@ -579,14 +589,17 @@ def edit_header(text: str, edits: Sequence[tuple[str, str]]) -> str:
             new_tables.setdefault(table, []).append(f"{key} = {value}")
     for table, body in new_tables.items():
         inserts.setdefault(header_last, []).extend(["", f"[{table}]", *body])
-    for after in sorted(inserts, reverse=True):
-        lines[after:after] = inserts[after]
-    return "\n".join(lines)
+    out: list[str] = []
+    for i, line in enumerate(lines):
+        if i not in removed:
+            out.append(line)
+        out.extend(inserts.get(i + 1, ()))
+    return "\n".join(out)
 
 
-def file_edits(proposal: Proposal) -> tuple[tuple[str, str], ...]:
+def file_edits(proposal: Proposal) -> tuple[tuple[str, str | None], ...]:
     """The proposal's edits, filter keys in their usual order."""
-    def rank(item: tuple[str, str]) -> tuple[int, int]:
+    def rank(item: tuple[str, str | None]) -> tuple[int, int]:
         table, key = item[0].rsplit(".", 1)
         return (0 if table == "conversion" else 1,
                 _FILTER_KEY_ORDER.index(key) if key in _FILTER_KEY_ORDER else 99)

@@ -195,7 +195,7 @@ class ProposalView:
     current: str
     proposed: str  # the one-line explanation (or why there is none)
     found: bool
-    edits: tuple[tuple[str, str], ...]
+    edits: tuple[tuple[str, str], ...]  # (key, new value or "(removed)")
     stages: tuple[StageRow, ...]
     left: tuple[str, ...]
 
@@ -605,7 +605,7 @@ def _proposal_view(result: ChannelResult, proposal: Proposal | None) -> Proposal
                             "" if s.notch_hz is None else format_quantity(s.notch_hz, "Hz"))
                    for i, s in enumerate(proposal.stages, start=1))
     return ProposalView(_current_design(result), proposal.explanation, proposal.design is not None,
-                        file_edits(proposal), stages,
+                        tuple((k, "(removed)" if v is None else v) for k, v in file_edits(proposal)), stages,
                         proposal.unfixable if proposal.design is not None else ())
 
 

@@ -480,3 +480,23 @@ def test_a_stated_packed_data_rate_is_not_flagged(tree: Path) -> None:
     acc.write_text(acc.read_text(encoding="utf-8").replace('"1.152 Mbit/s"', '"1.3 Mbit/s"'), encoding="utf-8")
     found = [f for f in run_rules(analyze(load_spec(tree))) if f.rule == "stated-figure-mismatch"]
     assert len(found) == 1 and "matches neither" in found[0].message
+
+
+def test_filter_keys_a_family_has_no_use_for_are_refused(tree: Path) -> None:
+    acc = tree / "channels" / "ACC-1.md"
+    acc.write_text(acc.read_text(encoding="utf-8").replace('corner = "100 kHz"', 'corner = "100 kHz"\nripple = "1 dB"'),
+                   encoding="utf-8")
+    with pytest.raises(SpecErrors) as caught:
+        load_spec(tree)
+    assert [(e.line, "ripple" in str(e)) for e in caught.value.errors] == [(24, True)]
+
+
+def test_a_proposal_that_changes_family_removes_the_keys_it_leaves_unused() -> None:
+    from generator.propose import edit_header
+
+    text = ('+++\ntitle = "x"\n\n[filter]\nfamily = "elliptic"\norder = 5\nripple = "0.5 dB"\n'
+            'stopband_attenuation = "60 dB"  # supplier\n+++\nnotes\n')
+    after = edit_header(text, [("filter.family", '"butterworth"'), ("filter.ripple", None),
+                               ("filter.stopband_attenuation", None), ("conversion.rate", '"1 kS/s"')])
+    assert after == ('+++\ntitle = "x"\n\n[filter]\nfamily = "butterworth"\norder = 5\n\n[conversion]\n'
+                     'rate = "1 kS/s"\n+++\nnotes\n')
