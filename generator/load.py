@@ -663,13 +663,10 @@ def _load_channel(path: Path, rel: str, system: System | None, problems: list[Sp
         else:
             family = f["family"]
             # a key that shapes no filter of this family would be silently ignored: refuse it
-            if "ripple" in f and family not in ("chebyshev1", "elliptic"):
-                src.problem("filter.ripple", f"a {family} filter has no passband ripple to set; ripple applies to "
-                                             "chebyshev1 and elliptic filters: remove it")
-            if "stopband_attenuation" in f and family not in ("chebyshev2", "elliptic"):
-                src.problem("filter.stopband_attenuation", f"a {family} filter has no stopband floor to set; "
-                                                           "stopband_attenuation applies to chebyshev2 and elliptic "
-                                                           "filters: remove it")
+            for key in schema.CHANNEL_KEYS:
+                if key.table == "filter" and key.families and key.name in f and family not in key.families:
+                    src.problem(key.path, f"{key.name} does not shape a {family} filter (it applies to "
+                                          f"{' and '.join(key.families)} filters): remove it")
             filt = Filter(family, f.get("order"), _value(f.get("corner")),
                           _value(f.get("ripple")) or 0.1, _value(f.get("stopband_attenuation")) or 80.0)
     if kind == "output" and conv_raw.get("sinc_compensation") and conv_raw.get("hold") == "none":

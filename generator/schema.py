@@ -52,6 +52,7 @@ class Key:
     minimum: float | None = None  # inclusive lower bound on the SI value / number
     positive: bool = False  # strictly greater than zero
     maximum: float | None = None
+    families: tuple[str, ...] = ()  # a [filter] key that shapes only these families (others refuse it)
 
     @property
     def path(self) -> str:
@@ -137,9 +138,11 @@ CHANNEL_KEYS: tuple[Key, ...] = (
         "edge (chebyshev1, elliptic), stopband edge (chebyshev2).", dims=("Hz",), example='"8 kHz"',
         positive=True, kinds=("input", "output")),
     Key("filter", "ripple", QUANTITY, "Passband ripple (chebyshev1, elliptic).", dims=("dB",),
-        default='"0.1 dB"', example='"0.5 dB"', positive=True, kinds=("input", "output")),
+        default='"0.1 dB"', example='"0.5 dB"', positive=True, kinds=("input", "output"),
+        families=("chebyshev1", "elliptic")),
     Key("filter", "stopband_attenuation", QUANTITY, "Stopband attenuation (chebyshev2, elliptic).",
-        dims=("dB",), default='"80 dB"', example='"80 dB"', positive=True, kinds=("input", "output")),
+        dims=("dB",), default='"80 dB"', example='"80 dB"', positive=True, kinds=("input", "output"),
+        families=("chebyshev2", "elliptic")),
     # [[interference]]
     Key("interference", "frequency", QUANTITY, "Frequency of a known tone outside the band.",
         dims=("Hz",), example='"50 kHz"', required=True, positive=True, kinds=("input",)),

@@ -188,6 +188,10 @@ def example_values(kind: str) -> dict[tuple[str, str], Any]:
         applies = kind in key.kinds and key.table not in ("waiver", "stated") and key.name != "link"
         values[(key.table, key.name)] = example_value(key) if applies else _OMIT
     values[("", "kind")] = kind
+    family = values.get(("filter", "family"))
+    for key in schema.CHANNEL_KEYS:  # keys the example family has no use for are refused
+        if key.families and family not in key.families:
+            values[(key.table, key.name)] = _OMIT
     if kind == "output":  # a voltage command: the examples in g do not apply
         values.update({("conversion", "converter"): "dac", ("", "unit"): "V", ("signal", "peak"): "5 V",
                        ("signal", "resolution"): "1 mV"})

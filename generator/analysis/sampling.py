@@ -309,17 +309,24 @@ def _floor(channel: Channel, peak_dbfs: float | None) -> float | None:
 def _order_masks(rate: float, high: float, stop: float, dec: DecimationFilter | None,
                  delta_sigma: bool) -> list[tuple[float, float]]:
     """(stop edge, loss needed there) pairs every compliant filter must meet: a necessary
-    condition of :func:`folding.alias_rejection`, so the least order of each is a lower bound."""
+    condition of :func:`folding.alias_rejection`, so the least order of each is a lower bound.
+
+    With one mask it is also sufficient (every classical design has at least the needed loss
+    from its edge up), so the classical least order is exact."""
     masks = []
     if not delta_sigma or dec is None:
         masks.append((rate - high, stop))
-        return [(edge, need) for edge, need in masks if edge > high * (1 + 1e-12)]
-    if dec.modulator_rate_hz:
-        masks.append((dec.modulator_rate_hz - high, stop))
-    if rate - high < dec.stopband_hz:  # the first alias falls in the decimation filter's transition band
-        masks.append((rate - high, stop))
-    elif stop - dec.rejection_db > 0:  # the decimation filter alone is not enough near fs
-        masks.append((rate - high, stop - dec.rejection_db))
+    else:
+        f_mod = dec.modulator_rate_hz
+        if f_mod:
+            ratio = f_mod / rate
+            exact = abs(ratio - round(ratio)) <= 1e-9 * ratio
+            # the lowest content that folds through the modulator (folding._near_modulator)
+            masks.append((f_mod - (high if exact else dec.stopband_hz), stop))
+        if rate - high < dec.stopband_hz:  # the first alias falls in the decimation filter's transition band
+            masks.append((rate - high, stop))
+        elif stop - dec.rejection_db > 0:  # the decimation filter alone is not enough near fs
+            masks.append((rate - high, stop - dec.rejection_db))
     return [(edge, need) for edge, need in masks if edge > high * (1 + 1e-12)]
 
 
@@ -347,8 +354,10 @@ def least_orders(rate: float, high: float, flatness: float, required: float | No
             out[fam] = None
             continue
         first = max((d for d in starts if d is not None), key=lambda d: d.order)
-        if len(masks) == 1 and (dec is None or not delta_sigma):
-            out[fam] = first  # one edge, one classical mask: exact
+        if len(masks) == 1 or fam not in ("chebyshev2", "elliptic"):
+            # one mask: exact; a monotonic stopband meets every mask from the edge up, so the largest
+            # classical order over the masks is exact too
+            out[fam] = first
             continue
         found = None
         for n in range(first.order, flt.MAX_ORDER + 1):

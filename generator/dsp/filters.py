@@ -597,9 +597,9 @@ def least_loss_on_bands(filt: AnalogFilter | None, bands: list[Bands]) -> LossAt
         lows = [m0 * t + a for t, a, _, m0, m1 in bands if m0 <= m1]
         return LossAt(0.0, max(min(lows), 0.0)) if lows else best
     shape = prototype_shape(filt.family, filt.order, filt.ripple_db, filt.stopband_db)
-    z, p, k = _normalised(filt)
     fc = filt.corner_hz
     xs = (*shape.x, math.inf)
+    points: list[float] = []  # candidate frequencies, evaluated together below
     for i in range(len(xs) - 1):
         lo, hi = xs[i] * fc, xs[i + 1] * fc
         rising = (shape.loss[i + 1] if i + 1 < len(shape.loss) else shape.limit) >= shape.loss[i]
@@ -621,8 +621,12 @@ def least_loss_on_bands(filt: AnalogFilter | None, bands: list[Bands]) -> LossAt
                 f = min(hi, m * t + b)
                 if m < m0 or f < lo:
                     continue
-            loss = float(_loss_normalised(z, p, k, np.array([f / fc]))[0])
-            if loss < best.loss_db or (loss == best.loss_db and f < best.frequency_hz):
+            points.append(f)
+    if points:
+        z, p, k = _normalised(filt)
+        losses = _loss_normalised(z, p, k, np.array(points) / fc)
+        for f, loss in sorted(zip(points, losses.tolist(), strict=True)):
+            if loss < best.loss_db:
                 best = LossAt(loss, f)
     return best
 
