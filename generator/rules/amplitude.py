@@ -72,6 +72,7 @@ def _at_converter(ch: Channel, a: AmplitudeResult) -> str:
     about its centre). Beyond it the converter clips and every figure downstream is wrong. Change
     the gain, choose a less sensitive sensor or a wider full scale.""",
     kinds=("input", "output"),
+    tags=("amplitude", "gain-or-bits"),
 )
 def clipping(result: ChannelResult, system: System) -> Iterator[Hit]:
     a = result.amplitude
@@ -100,6 +101,7 @@ def clipping(result: ChannelResult, system: System) -> Iterator[Hit]:
     volts (quantization, converter noise) grows by the same factor relative to the signal. Change
     the gain so the peak uses about 90 % of full scale, or choose a smaller full scale.""",
     kinds=("input", "output"),
+    tags=("amplitude", "gain-or-bits"),
 )
 def range_underused(result: ChannelResult, system: System) -> Iterator[Hit]:
     a = result.amplitude
@@ -126,6 +128,7 @@ def range_underused(result: ChannelResult, system: System) -> Iterator[Hit]:
     Use more bits (N >= log2(FSR / (resolution x sensitivity x gain))), or raise the gain if the
     peak still fits the full scale.""",
     kinds=("input", "output"),
+    tags=("amplitude", "gain-or-bits"),
 )
 def resolution(result: ChannelResult, system: System) -> Iterator[Hit]:
     a = result.amplitude
@@ -171,6 +174,7 @@ def _allowed_for(a: AmplitudeResult, name: str, required_db: float) -> float | N
     jitter, referred through the gain after it. The message names the largest contribution, the
     one to fix first.""",
     kinds=("input", "output"),
+    tags=("amplitude", "rate-or-filter"),
 )
 def noise_floor(result: ChannelResult, system: System) -> Iterator[Hit]:
     a = result.amplitude
@@ -228,6 +232,7 @@ def noise_floor(result: ChannelResult, system: System) -> Iterator[Hit]:
     output's update clock jitters the same way. The jitter is the channel's own, else the
     converter's aperture jitter and its clock's added as a root sum of squares (ADI MT-007).""",
     kinds=("input", "output"),
+    tags=("amplitude", "gain-or-bits"),
 )
 def jitter_limit(result: ChannelResult, system: System) -> Iterator[Hit]:
     a = result.amplitude
@@ -255,6 +260,7 @@ def jitter_limit(result: ChannelResult, system: System) -> Iterator[Hit]:
     """A channel inherits `bits` and `full_scale` from its converter. Writing a different value in
     the channel file makes its figures disagree with the hardware it names. Remove the key to
     inherit the converter's value, or correct the converter in system.toml.""",
+    tags=("amplitude", "gain-or-bits"),
 )
 def bits_mismatch(result: ChannelResult, system: System) -> Iterator[Hit]:
     ch = result.channel

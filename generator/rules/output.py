@@ -50,6 +50,7 @@ def _hz(value: float) -> str:
     (`sinc_compensation`) removes the hold's part. Fix: raise the rate, pre-correct the stream,
     or raise the filter corner.""",
     kinds=("output",),
+    tags=("rate-or-filter",),
 )
 def zoh_droop(result: ChannelResult, system: System) -> Iterator[Hit]:
     o = result.output
@@ -90,6 +91,7 @@ def zoh_droop(result: ChannelResult, system: System) -> Iterator[Hit]:
     6.02 N + 1.76 dB, ADI MT-001). Fix: raise the rate (the images move up), or steepen the
     filter.""",
     kinds=("output",),
+    tags=("rate-or-filter",),
 )
 def image_rejection(result: ChannelResult, system: System) -> Iterator[Hit]:
     o = result.output
@@ -137,6 +139,7 @@ def image_rejection(result: ChannelResult, system: System) -> Iterator[Hit]:
     overdrive the actuator. Checked where the channel's unit is a voltage. Fix: lower the gain,
     or narrow the converter's range.""",
     kinds=("output",),
+    tags=("gain-or-bits",),
 )
 def output_overrange(result: ChannelResult, system: System) -> Iterator[Hit]:
     o = result.output

@@ -23,6 +23,7 @@ from . import Hit, beyond, channel_rule, short_of
     Shannon 1949). Below that, the top of the band folds onto itself and no filter can
     separate it. Raise the rate, or narrow the band.""",
     kinds=("input", "output"),
+    tags=("sampling", "rate-or-filter"),
 )
 def below_nyquist(result: ChannelResult, system: System) -> Iterator[Hit]:
     s = result.sampling
@@ -99,6 +100,7 @@ def _skip_alias_checks(s: SamplingResult | None) -> bool:
     f_mod (there content folds through the modulator itself, and in its own transition band), where
     only the analog filter counts; no analog filter counts as 0 dB. A decimation filter
     system.toml does not describe earns no credit; an unknown modulator rate is reported.""",
+    tags=("sampling", "rate-or-filter"),
 )
 def alias_rejection(result: ChannelResult, system: System) -> Iterator[Hit]:
     s = result.sampling
@@ -246,6 +248,7 @@ def _modulator_unknown(s: SamplingResult, need: float, conv_id: str) -> Iterator
     elliptic loses up to its ripple anywhere inside its passband (an even order at DC). On a
     delta-sigma converter the band must also sit inside the decimation filter's passband,
     f_high <= passband x fs.""",
+    tags=("sampling", "rate-or-filter"),
 )
 def band_edge_droop(result: ChannelResult, system: System) -> Iterator[Hit]:
     s = result.sampling
@@ -300,6 +303,7 @@ def _modulator(s: SamplingResult) -> float | None:
     fs - f_high onto the band; only an analog filter ahead of it can remove that content. An
     input on such a converter needs a [filter] (family, order and corner; a family alone lets
     specfold size it). A delta-sigma converter's decimation filter does this job near fs.""",
+    tags=("sampling", "rate-or-filter"),
 )
 def filter_missing(result: ChannelResult, system: System) -> Iterator[Hit]:
     s = result.sampling
@@ -334,6 +338,7 @@ def filter_missing(result: ChannelResult, system: System) -> Iterator[Hit]:
     with r = f_stop / f_high, ep2 = 10^(flatness/10) - 1, es2 = 10^(A/10) - 1; Williams &
     Taylor) and by search for bessel. When every family needs more than 20 poles the rate
     leaves the filter too little room.""",
+    tags=("sampling", "rate-or-filter"),
 )
 def filter_impractical(result: ChannelResult, system: System) -> Iterator[Hit]:
     s = result.sampling
@@ -363,6 +368,7 @@ def filter_impractical(result: ChannelResult, system: System) -> Iterator[Hit]:
     analog filter at f (and by the decimation filter's stopband rejection where it applies) and
     lands at level - attenuation dBFS; the finding is raised when it lands inside the band
     above the channel's floor (see alias-rejection).""",
+    tags=("sampling", "rate-or-filter"),
 )
 def interference_folds(result: ChannelResult, system: System) -> Iterator[Hit]:
     s = result.sampling
