@@ -96,7 +96,6 @@ class Contribution:
 
 @dataclass(frozen=True)
 class AmplitudeResult:
-    kind: str
     bits: int
     full_scale_range_volts: float
     full_scale_amplitude_volts: float
@@ -108,7 +107,6 @@ class AmplitudeResult:
     volts_per_unit: float | None = None  # at the converter, per SI unit of the measurand
     peak_volts: float | None = None
     processing_gain_db: float | None = None
-    quantization_snr_db: float | None = None  # in band, relative to the signal
     jitter_s: float | None = None
     jitter_snr_db: float | None = None
     sensor_snr_db: float | None = None
@@ -236,7 +234,6 @@ def analyze_amplitude(channel: Channel, system: System) -> AmplitudeResult | Non
     lsb = q.lsb(span.width, conv.bits)
     qnoise = q.quantization_noise_rms(lsb)
     base = AmplitudeResult(
-        kind=channel.kind,
         bits=conv.bits,
         full_scale_range_volts=span.width,
         full_scale_amplitude_volts=span.amplitude,
@@ -287,7 +284,6 @@ def _budget(channel: Channel, base: AmplitudeResult) -> AmplitudeResult:
         sensor_snr = None if db is None else -db
         rows.append(Contribution("sensor noise", sensor_at_converter, s_si, db))
 
-    q_snr = None if rows[0].db is None else -rows[0].db
     total_snr = None
     if all(r.db is not None for r in rows):
         total_snr = q.power_sum_snr_db(-(r.db or 0.0) for r in rows)
@@ -309,7 +305,6 @@ def _budget(channel: Channel, base: AmplitudeResult) -> AmplitudeResult:
         volts_per_unit=per_unit,
         peak_volts=peak_volts,
         processing_gain_db=pg,
-        quantization_snr_db=q_snr,
         jitter_s=jitter_used,
         jitter_snr_db=jitter_snr,
         sensor_snr_db=sensor_snr,

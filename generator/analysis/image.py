@@ -42,8 +42,6 @@ FRAME_BITS_STORED = figure("frame_bits_stored", "Bits per frame (or line) in sto
 
 @dataclass(frozen=True)
 class ImageResult:
-    pixels: tuple[int, int]
-    line_sensor: bool
     frame_rate_hz: float | None
     pixel_pitch_m: float
     pixel_pitch_x_m: float
@@ -93,8 +91,6 @@ def analyze_image(channel: Channel, system: System) -> ImageResult | None:
     stored = None if conv.container_bits is None else dsp.frame_bits(w, h, conv.container_bits)
     rate = conv.rate
     return ImageResult(
-        pixels=(w, h),
-        line_sensor=line,
         frame_rate_hz=rate,
         pixel_pitch_m=pitch,
         pixel_pitch_x_m=px,

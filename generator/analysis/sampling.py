@@ -109,7 +109,6 @@ class ToneFold:
     index: int
     frequency_hz: float
     source: str
-    line: int
     alias_hz: float
     zone: int
     inverted: bool
@@ -394,7 +393,7 @@ def _tone(i: int, channel: Channel, tone: Tone, rate: float, filt: flt.AnalogFil
         landed_at = dsp.alias_frequency(f, rate)
     zone = dsp.nyquist_zone(f, rate)
     return ToneFold(
-        index=i, frequency_hz=f, source=tone.source, line=tone.line, alias_hz=landed_at, zone=zone,
+        index=i, frequency_hz=f, source=tone.source, alias_hz=landed_at, zone=zone,
         inverted=dsp.is_inverted(f, rate), folded=not math.isclose(landed_at, f, rel_tol=1e-12),
         in_band=low <= landed_at <= high, level_dbfs=_dbfs(channel, tone.level, tone.level_dim),
         analog_attenuation_db=flt.attenuation_db(filt, f) if filt is not None else 0.0,

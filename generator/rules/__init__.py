@@ -212,11 +212,6 @@ def match_waivers(findings: Iterable[Finding], analysis: SystemAnalysis) -> tupl
     return out, used
 
 
-def apply_waivers(findings: Iterable[Finding], analysis: SystemAnalysis) -> list[Finding]:
-    """Mark findings covered by a channel's ``[[waiver]]``: still listed, no longer failing."""
-    return match_waivers(findings, analysis)[0]
-
-
 def channel_rule_findings(result: ChannelResult, system: System) -> tuple[Finding, ...]:
     """Every channel rule's findings on one channel, before waivers, in registration order."""
     _load_rule_modules()
@@ -274,11 +269,6 @@ def tagged(*tags: str) -> tuple[str, ...]:
     if unknown:
         raise ValueError(f"unknown tags {', '.join(unknown)}")
     return tuple(r.id for r in all_rules() if r.tags.issuperset(tags))
-
-
-def channel_status(findings: Iterable[Finding], channel_id: str) -> str:
-    """ok | warning | error: the worst unwaived finding on the channel (info does not count)."""
-    return worst_status(f for f in findings if channel_id in f.channels)
 
 
 def by_channel(findings: Iterable[Finding]) -> dict[str, list[Finding]]:
