@@ -6,7 +6,7 @@ import math
 from collections.abc import Iterator
 
 from ..analysis import ChannelResult
-from ..analysis.sampling import DIGITAL, SamplingResult
+from ..analysis.sampling import SamplingResult
 from ..dsp import filters as flt
 from ..dsp import folding
 from ..dsp.filters import AnalogFilter, OrderDesign
@@ -127,7 +127,7 @@ def alias_rejection(result: ChannelResult, system: System) -> Iterator[Hit]:
                    "stopband_rejection in system.toml), so it is given no credit" if s.delta_sigma
                    and s.decimation is None else "")
     where = _worst_place(s)
-    if s.alias_rejection_source == DIGITAL and s.decimation is not None:
+    if s.alias_rejection_source == folding.DIGITAL and s.decimation is not None:
         dec = s.decimation
         analog = have - dec.rejection_db
         verb = "make the analog filter give" if filt is not None else "add an analog filter giving"
