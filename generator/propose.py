@@ -37,7 +37,7 @@ from .analysis import ChannelResult, SystemAnalysis, analyze, analyze_channel
 from .analysis.budgets import BudgetIndex, Budgets, Reach
 from .dsp import filters as flt
 from .load import locate_keys, split_header
-from .model import Channel, Converter, Filter, Spec, id_key
+from .model import Channel, Converter, Filter, Spec, id_key, key_default
 from .quantities import format_quantity
 from .rules import Finding, run_rules, tagged
 
@@ -207,8 +207,8 @@ def shaped_filter(family: str, order: int, f_high: float, flatness_db: float,
     (:func:`generator.dsp.filters.corner_for_droop`).  None when the family cannot meet the
     flatness or a stage's Q would exceed :data:`MAX_STAGE_Q`.
     """
-    ripple = flatness_db if family in ("chebyshev1", "elliptic") else 0.1
-    stop = stopband_db if family in ("chebyshev2", "elliptic") else 80.0
+    ripple = flatness_db if family in ("chebyshev1", "elliptic") else key_default("filter.ripple")
+    stop = stopband_db if family in ("chebyshev2", "elliptic") else key_default("filter.stopband_attenuation")
     if family == "elliptic" and stop <= ripple:
         return None
     try:

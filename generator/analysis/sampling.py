@@ -26,7 +26,7 @@ from typing import Any
 from ..dsp import filters as flt
 from ..dsp import folding, quantization
 from ..dsp import sampling as dsp
-from ..model import Channel, Converter, System, Tone
+from ..model import Channel, Converter, System, Tone, key_default
 from .figures import Figures, FigureValue, figure_field, result_class
 
 DecimationFilter = folding.Decimation
@@ -216,8 +216,8 @@ class SamplingResult(Figures):
 
     kind: str = "input"
     architecture: str = ""
-    flatness_db: float = 0.5
-    out_of_band_dbfs: float = 0.0
+    flatness_db: float = key_default("signal.flatness")
+    out_of_band_dbfs: float = key_default("signal.out_of_band")
     filter_proposed: bool = False
     filter_problem: str = ""  # why a declared [filter] could not be designed
     decimation: DecimationFilter | None = None
