@@ -271,3 +271,80 @@ def _budget(channel: Channel, base: AmplitudeResult) -> AmplitudeResult:
         dynamic_range_db=dynamic_range,
         budget=tuple(rows),
     )
+
+
+# ------------------------------------------------------------------ what would fix it (rule messages)
+
+TARGET_USAGE = 0.9
+"""Share of full scale a suggested gain aims at, leaving about 1 dB of headroom (common practice)."""
+
+
+def gain_for_usage(channel: Channel, a: AmplitudeResult, target: float = TARGET_USAGE) -> float:
+    """The gain that puts the peak at ``target`` of the full-scale amplitude: on an input the
+    converter sees peak x gain, so g' = g x target / usage; on an output it must produce peak / gain,
+    so g' = g x usage / target (usage = V_pk / full-scale amplitude, as :attr:`AmplitudeResult.range_usage`)."""
+    usage = a.range_usage or 0.0
+    gain = channel.conversion.gain
+    return gain * target / usage if channel.kind == "input" else gain * usage / target
+
+
+def over_full_scale_db(a: AmplitudeResult) -> float | None:
+    """How far the peak at the converter lies beyond the full-scale amplitude: 20 log10(V_pk / A_FS)
+    (ADI MT-001 amplitude ratio in dB); None without a peak."""
+    if a.peak_volts is None:
+        return None
+    return q.amplitude_db(a.peak_volts / a.full_scale_amplitude_volts)
+
+
+@dataclass(frozen=True)
+class ResolutionFix:
+    bits: int  # fewest bits whose LSB meets the resolution
+    gain_factor: float  # how many times the gain must rise for the same (LSB / resolution)
+
+
+def resolution_fix(a: AmplitudeResult, wanted: float) -> ResolutionFix | None:
+    """Fewest bits N with FSR / 2^N <= resolution x volts per unit (:func:`generator.dsp.quantization.bits_for_lsb`,
+    IEEE Std 1241-2010 code width), and the gain factor LSB / resolution that would do instead;
+    None when the LSB in the measurand is not known."""
+    lsb_si = a.lsb_si
+    if lsb_si is None or not wanted > 0:
+        return None
+    per_unit = a.volts_per_unit or 1.0
+    return ResolutionFix(q.bits_for_lsb(a.full_scale_range_volts, wanted * per_unit), lsb_si / wanted)
+
+
+def snr_needed_from(a: AmplitudeResult, name: str, required_db: float) -> float | None:
+    """The SNR the named contribution must reach for the power sum of the budget to meet
+    ``required_db``: -10 log10(10^(-SNR_req / 10) - sum over the others of 10^(-SNR_i / 10))
+    (ADI MT-003); None when the others alone already miss it."""
+    others = [-(c.db or 0.0) for c in a.budget if c.name not in (name, "total") and c.db is not None]
+    room = math.pow(10.0, -required_db / 10.0) - math.fsum(math.pow(10.0, -s / 10.0) for s in others)
+    return None if room <= 0 else -q.power_db(room)
+
+
+def jitter_for_snr(channel: Channel, snr_db: float) -> float | None:
+    """Largest rms jitter with which a sine at the band top still reaches ``snr_db``:
+    t_j = 10^(-SNR/20) / (2 pi f_high) (:func:`generator.dsp.quantization.max_jitter`, ADI MT-007);
+    None without a band."""
+    band = channel.signal.band
+    if band is None or not band[1] > 0:
+        return None
+    return q.max_jitter(snr_db, band[1])
+
+
+@dataclass(frozen=True)
+class SensorNoiseFix:
+    rms: float  # largest sensor noise, SI of the measurand, rms in the noise bandwidth
+    density: float | None  # the same per root hertz, for a sensor specified by its density
+
+
+def sensor_noise_for_snr(channel: Channel, a: AmplitudeResult, snr_db: float) -> SensorNoiseFix | None:
+    """Largest sensor noise that keeps the sensor's part of the budget at ``snr_db`` below a sine at
+    the peak: rms = (peak / sqrt 2) / 10^(SNR/20); a density divides that by sqrt(B_n) (ADI MT-003).
+    None without a peak or a sensor noise."""
+    peak, noise = channel.signal.peak, channel.sensor.noise
+    if peak is None or noise is None:
+        return None
+    allowed = q.sine_rms(peak) / q.amplitude_ratio(snr_db)
+    density = allowed / math.sqrt(a.noise_bandwidth_hz) if noise.density and a.noise_bandwidth_hz else None
+    return SensorNoiseFix(allowed, density)

@@ -87,3 +87,18 @@ def analyze_image(channel: Channel, system: System) -> ImageResult | None:
         frame_bits=bits,
         frame_bits_stored=stored,
     )
+
+
+# ------------------------------------------------------------------ what would fix it (rule messages)
+
+
+def pitch_for_detail(detail_cycles_per_m: float) -> float:
+    """Coarsest pixel pitch whose spatial Nyquist frequency 1 / (2 p) reaches the detail:
+    p = 1 / (2 detail) (the sampling theorem in space; Holst, from memory)."""
+    return 1.0 / (2.0 * detail_cycles_per_m)
+
+
+def magnification_for_detail(im: ImageResult, detail_cycles_per_m: float) -> float:
+    """Optical magnification that brings the detail down to the sensor's spatial Nyquist frequency:
+    detail / f_N."""
+    return detail_cycles_per_m / im.spatial_nyquist_cycles_per_m

@@ -8,6 +8,8 @@ Sign conventions: ``zoh_droop_db`` is the hold's gain at the band top in dB (0 o
 from __future__ import annotations
 
 import math
+from collections.abc import Callable
+from dataclasses import dataclass, replace
 
 from ..dsp import filters, folding, quantization
 from ..dsp import reconstruction as rec
@@ -96,12 +98,82 @@ def filter_loss_db(filt: Filter | None, f_hz: float) -> float | None:
 
 
 def image_rejection_at(channel: Channel, rate_hz: float) -> float:
-    """Image rejection (hold + filter, dB, least over every image) the channel would have at
-    ``rate_hz``; for the rule's fix."""
+    """Image rejection (hold + filter, dB, least over every image,
+    :func:`generator.dsp.folding.image_rejection`) the channel would have at ``rate_hz``."""
     assert channel.signal.band is not None
     got = folding.image_rejection(designed_filter(channel.filter), rate_hz, channel.signal.band[1],
                                   channel.conversion.hold == "zero-order")
     return got.db
+
+
+# ------------------------------------------------------------------ what would fix it (rule messages)
+
+
+def _root(fn: Callable[[float], float], lo: float, hi: float) -> float | None:
+    """Where ``fn`` crosses zero between ``lo`` and ``hi`` (Brent's method, scipy.optimize.brentq,
+    relative tolerance 1e-10); None without a sign change there."""
+    try:
+        a, b = fn(lo), fn(hi)
+        if not (math.isfinite(a) and math.isfinite(b)) or a * b > 0:
+            return None
+        from scipy.optimize import brentq  # imported when first needed
+
+        return float(brentq(fn, lo, hi, rtol=1e-10))
+    except (ValueError, ZeroDivisionError, OverflowError):
+        return None
+
+
+def rate_for_image_rejection(channel: Channel, o: OutputResult, required_db: float) -> float | None:
+    """The rate, between the channel's and 10^4 times it, at which its image rejection
+    (:func:`image_rejection_at`) reaches ``required_db``; None when none in that span does."""
+    return _root(lambda fs: image_rejection_at(channel, fs) - required_db, o.rate_hz, o.rate_hz * 1e4)
+
+
+def corner_for_image_rejection(channel: Channel, o: OutputResult, required_db: float) -> float | None:
+    """The corner, between the band top and the filter's own, at which the channel's image rejection
+    (:func:`image_rejection_at`, same family and order) reaches ``required_db``; None without an
+    ordered and cornered filter, or when no corner above the band top does."""
+    filt = channel.filter
+    if filt is None or filt.order is None or filt.corner is None:
+        return None
+
+    def excess(corner: float) -> float:
+        return image_rejection_at(replace(channel, filter=replace(filt, corner=corner)), o.rate_hz) - required_db
+
+    corner = _root(excess, o.band_high_hz, filt.corner)
+    return corner if corner is not None and corner > o.band_high_hz else None
+
+
+@dataclass(frozen=True)
+class DroopParts:
+    """The output's loss where it is largest inside the band, split between the hold and the filter,
+    and the least rate at which the hold's part fits what the filter leaves of the flatness."""
+
+    at_hz: float
+    hold_db: float  # loss (positive dB); 0 without a hold or with sinc compensation
+    filter_db: float  # 0 without a designed filter
+    rate_hz: float | None  # None: the hold has no part, or the filter alone uses the flatness
+
+
+def droop_parts(channel: Channel, o: OutputResult) -> DroopParts:
+    """Hold loss -20 log10 |sinc(f / fs)| (ADI MT-017) and filter loss A(f) at the worst in-band
+    frequency f of :attr:`OutputResult.passband_error_at_hz`; the rate that brings the hold's loss at
+    f down to flatness - A(f): :func:`generator.dsp.reconstruction.min_rate_for_droop`."""
+    at = o.passband_error_at_hz
+    hold = -(rec.hold_droop_db(at, o.rate_hz)) if o.hold == "zero-order" and not o.sinc_compensation else 0.0
+    filt = filter_loss_db(channel.filter, at) or 0.0
+    budget = o.flatness_db - filt
+    rate = rec.min_rate_for_droop(at, budget) if hold > 0.0 and budget > 0.0 else None
+    return DroopParts(at, hold, filt, rate)
+
+
+def gain_for_limit(channel: Channel) -> float | None:
+    """The largest gain after the converter whose drive, full-scale peak x gain, stays within the
+    channel's ``limit``: limit / full-scale peak; None without a limit or a full scale."""
+    limit, fs = channel.signal.limit, channel.conversion.full_scale
+    if limit is None or fs is None or not fs.peak > 0:
+        return None
+    return limit / fs.peak
 
 
 def analyze_output(channel: Channel, system: System) -> OutputResult | None:

@@ -190,7 +190,7 @@ class SamplingResult(Figures):
         "rejection (as above) >= required; null above 20",
         "starts from scipy.signal buttord/cheb1ord/cheb2ord/ellipord (analog=True); bessel by search",
         default_factory=dict, encode=_least_orders_json, shown=_input)
-    modulator_rate_hz: float | None = figure_field(
+    modulator_rate_hz: float | None = figure_field(  # on every delta-sigma input whose rate is known
         "modulator_rate_hz", "Delta-sigma modulator rate", "Hz", "f_mod (or the least OSR x fs)", "system.toml",
         default=None, shown=_decimated)
     modulator_alias_hz: float | None = figure_field(
@@ -467,10 +467,96 @@ def analyze_sampling(channel: Channel, system: System) -> SamplingResult | None:
         required_alias_rejection_db=required,
         stop_edge_hz=stop_edge,
         least_orders=least,
-        modulator_rate_hz=dec.modulator_rate_hz if dec is not None else None,
+        modulator_rate_hz=f_mod,
         digital_passband_hz=dec.passband_hz if dec is not None else None,
         digital_stopband_hz=dec.stopband_hz if dec is not None else None,
         digital_rejection_db=dec.rejection_db if dec is not None else None,
         stages=stage_list(filt) if filt is not None else None,
         tones=tuple(_tone(i, channel, t, rate, filt, dec) for i, t in enumerate(channel.interference)),
     )
+
+
+# ------------------------------------------------------------------ what would fix it (rule messages)
+
+
+def rate_for_rejection(s: SamplingResult, need_db: float) -> float | None:
+    """Least rate at which the channel's own filter rejects everything from the first alias up by
+    ``need_db``: fs = f_high + f_A, f_A the lowest frequency from which the filter's loss stays at or
+    above ``need_db`` (:func:`generator.dsp.filters.frequency_for_attenuation`; fs - f_high is the
+    first alias, ADI MT-002).  None without a filter, or when its stopband never gets there."""
+    if s.filter is None:
+        return None
+    f_ok = flt.frequency_for_attenuation(s.filter, need_db)
+    return None if f_ok is None else f_ok + s.band_high_hz
+
+
+def rate_clearing_transition(s: SamplingResult) -> float | None:
+    """Least rate whose first alias fs - f_high reaches the decimation filter's stopband edge
+    b x fs (b the stopband as a fraction of the output rate): fs = f_high / (1 - b) [DER from ADI
+    MT-002]; None without a decimation filter or when b >= 1 (no rate does)."""
+    dec = s.decimation
+    if dec is None:
+        return None
+    stop_frac = dec.stopband_hz / s.rate_hz
+    return s.band_high_hz / (1 - stop_frac) if stop_frac < 1 else None
+
+
+def rate_for_decimation_passband(s: SamplingResult) -> tuple[float, float] | None:
+    """(passband as a fraction p of the output rate, least rate whose decimation passband p x fs
+    reaches the band top: fs = f_high / p); None without a decimation filter."""
+    dec = s.decimation
+    if dec is None:
+        return None
+    ratio = dec.passband_hz / s.rate_hz
+    return ratio, s.band_high_hz / ratio
+
+
+@dataclass(frozen=True)
+class CornerFix:
+    """A filter's corner moved to lose exactly the flatness at the band top."""
+
+    corner_hz: float
+    alias_rejection_db: float | None  # the channel's alias rejection with it; None when not judged
+
+
+def corner_for_flatness(s: SamplingResult) -> CornerFix | None:
+    """The corner at which the channel's filter (same family, order, ripple, stopband) loses
+    exactly the flatness at f_high (:func:`generator.dsp.filters.corner_for_droop`), with the alias
+    rejection (:func:`generator.dsp.folding.alias_rejection`) it then gives when the channel has a
+    required one; None without a filter, or for a ripple family whose ripple exceeds the flatness."""
+    filt = s.filter
+    if filt is None:
+        return None
+    corner = flt.corner_for_droop(filt, s.band_high_hz, s.flatness_db)
+    if corner is None:
+        return None
+    after = None
+    if s.required_alias_rejection_db is not None and s.alias_rejection_db is not None:
+        moved = flt.design(filt.family, filt.order, corner, filt.ripple_db, filt.stopband_db)
+        after = folding.alias_rejection(moved, s.rate_hz, s.band_high_hz, s.decimation,
+                                        None if s.decimation is not None else s.modulator_rate_hz).db
+    return CornerFix(corner, after)
+
+
+def rate_for_order(s: SamplingResult, family: str, order: int) -> float | None:
+    """Least rate at which ``order`` poles of ``family`` meet the channel's mask: the flatness at
+    f_high and the required rejection at fs - f_high; fs = f_high + the stopband edge of
+    :func:`generator.dsp.filters.stop_edge_for_order`.  None when no edge up to 1e9 f_high does."""
+    need = s.required_alias_rejection_db or 0.0
+    edge = flt.stop_edge_for_order(family, s.band_high_hz, order, s.flatness_db, max(need, s.flatness_db + 0.01))
+    return None if edge is None else edge + s.band_high_hz
+
+
+def order_for_tone(s: SamplingResult, tone: ToneFold, more_db: float) -> flt.AnalogFilter | None:
+    """The channel's filter at the least higher order (same family, corner, ripple and stopband) whose
+    loss at the tone's frequency, A(f) = -20 log10 |H(j 2 pi f)| (Williams & Taylor), is ``more_db``
+    above what the filter gives it now; None without a filter or when 20 poles do not."""
+    filt = s.filter
+    if filt is None:
+        return None
+    target = tone.analog_attenuation_db + more_db
+    for n in range(filt.order + 1, flt.MAX_ORDER + 1):
+        cand = flt.design(filt.family, n, filt.corner_hz, filt.ripple_db, filt.stopband_db)
+        if flt.attenuation_db(cand, tone.frequency_hz) >= target:
+            return cand
+    return None
