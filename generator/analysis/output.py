@@ -78,6 +78,7 @@ class OutputResult(Figures):
     hold: str
     sinc_compensation: bool
     flatness_db: float
+    filter: filters.AnalogFilter | None = None  # the reconstruction filter as designed
 
 
 def designed_filter(filt: Filter | None) -> filters.AnalogFilter | None:
@@ -219,6 +220,7 @@ def analyze_output(channel: Channel, system: System) -> OutputResult | None:
         passband_error_at_hz=passband.frequency_hz,
         flatness_db=channel.signal.flatness_db,
         output_peak_volts=peak,
+        filter=designed,
         stages=_stages(channel.filter),
     )
 
