@@ -24,14 +24,13 @@ import json
 import math
 from collections.abc import Callable, Iterable, Sequence
 from dataclasses import dataclass
-from functools import lru_cache
 from typing import Any
 
 import numpy as np
 
 from .analysis import ChannelResult
+from .analysis.curves import aperture_response, band_top_images, filter_response, hold_response_db, least_orders_by_rate
 from .dsp import filters as flt
-from .dsp.sampling import alias_frequency, nyquist_zone
 from .model import Channel, Tone
 from .quantities import format_in_unit, format_quantity
 
@@ -134,29 +133,6 @@ def _ticks(values: Sequence[float], dim: str) -> dict[str, Any]:
 # ---------------------------------------------------------------------------------------------
 
 
-def tone_dbfs(tone: Tone, channel: Channel) -> float | None:
-    """A tone's level in dBFS (sine-referenced) at the converter input, or None if unknown.
-
-    Volts at the sensor output are multiplied by the gain, engineering units by the
-    sensitivity and the gain; 0 dBFS is a sine whose peak is half the full-scale range
-    (the sine-referenced convention, AES17).  Levels are read as peak amplitudes.
-    """
-    if tone.level_dim == "dBFS":
-        return tone.level
-    conv = channel.conversion
-    if conv.full_scale is None or conv.full_scale.width <= 0:
-        return None
-    if tone.level_dim == "V":
-        volts = tone.level * conv.gain
-    elif channel.sensor.sensitivity is not None and tone.level_dim == channel.unit.dim:
-        volts = tone.level * channel.sensor.sensitivity * conv.gain
-    else:
-        return None
-    if volts <= 0:
-        return None
-    return 20.0 * math.log10(volts / (conv.full_scale.width / 2.0))
-
-
 def _tone_level_text(tone: Tone, channel: Channel) -> str:
     if tone.level_dim == "dBFS":
         return f"{tone.level:g} dBFS"
@@ -186,9 +162,9 @@ def folding_chart(result: ChannelResult) -> Chart | None:
     order = sorted(range(len(ch.interference)),
                    key=lambda i: (ch.interference[i].frequency, ch.interference[i].level, ch.interference[i].source))
     tones = [ch.interference[i] for i in order]
-    folds = {t.index: t for t in s.tones}
-    # after the analog filter (and a delta-sigma decimation filter): level - A(f), from SamplingResult
-    landed = [folds[i].landed_dbfs if i in folds else None for i in order]
+    folds = [next(t for t in s.tones if t.index == i) for i in order]
+    # before and after the analog filter (and a delta-sigma decimation filter): level, level - A(f)
+    landed = [t.landed_dbfs for t in folds]
     top = max([2.0 * fs, *(1.1 * t.frequency for t in tones)])
     zones = min(MAX_ZONES, max(4, math.ceil(2.0 * top / fs)))
     x_max = zones * fs / 2.0
@@ -214,7 +190,7 @@ def folding_chart(result: ChannelResult) -> Chart | None:
         shapes.append(_vline(s.first_alias_hz, TONE_COLOUR, "dash"))
         annotations.append(_label(s.first_alias_hz, f"first alias {_hz(s.first_alias_hz)} ", 0.93, "right"))
 
-    levels = [tone_dbfs(t, ch) for t in tones]
+    levels = [t.level_dbfs for t in folds]
     known = [lv for lv in (*levels, *landed) if lv is not None]
     floor = min([-120.0, *(lv - 20.0 for lv in known)])
     y_unknown = floor + 10.0  # tones whose level cannot be put in dBFS sit on a fixed line
@@ -234,14 +210,13 @@ def folding_chart(result: ChannelResult) -> Chart | None:
     ay: list[float] = []
     ttext: list[str] = []
     atext: list[str] = []
-    for tone, lv, after in zip(tones, levels, landed, strict=True):
+    for tone, fold, lv, after in zip(tones, folds, levels, landed, strict=True):
         y = lv if lv is not None else y_unknown
         y_after = after if after is not None else y
-        fa = alias_frequency(tone.frequency, fs)
-        zone = nyquist_zone(tone.frequency, fs)
-        lands = "in the band" if s.band_low_hz <= fa <= s.band_high_hz else "outside the band"
+        fa, zone = fold.alias_hz, fold.zone
+        lands = "in the band" if fold.in_band else "outside the band"
         what = f"{_hz(tone.frequency)} at {_tone_level_text(tone, ch)}" + (f" ({tone.source})" if tone.source else "")
-        where = f"appears at {_hz(fa)} (zone {zone}{', inverted' if zone % 2 == 0 else ''}), {lands}"
+        where = f"appears at {_hz(fa)} (zone {zone}{', inverted' if fold.inverted else ''}), {lands}"
         if tone.frequency <= x_max:
             tx.append(tone.frequency)
             ty.append(y)
@@ -318,16 +293,6 @@ def _db_trace(values: np.ndarray) -> np.ndarray:
     return np.maximum(out, RESPONSE_FLOOR_DB)
 
 
-def _reconstruction_filter(channel: Channel) -> flt.AnalogFilter | None:
-    spec = channel.filter
-    if spec is None or spec.order is None or spec.corner is None:
-        return None
-    try:
-        return flt.design(spec.family, spec.order, spec.corner, spec.ripple_db, spec.stopband_db)
-    except ValueError:
-        return None
-
-
 def _filter_name(filt: flt.AnalogFilter) -> str:
     return f"{filt.family}, order {filt.order}, corner {_hz(filt.corner_hz)}"
 
@@ -362,7 +327,7 @@ def filter_response_chart(result: ChannelResult) -> Chart | None:
         else:
             sets = f"The alias rejection is set by the {s.alias_rejection_source}."
     elif ch.kind == "output" and o is not None:
-        designed = _reconstruction_filter(ch)
+        designed = o.filter
         if designed is None:
             return None
         filt, fs, f_high = designed, o.rate_hz, o.band_high_hz
@@ -381,8 +346,9 @@ def filter_response_chart(result: ChannelResult) -> Chart | None:
     exact = [f_high, filt.corner_hz, *(m[0] for m in marks), *([stop] if stop else [])]
     grid = np.unique(np.concatenate([np.geomspace(f_lo, f_hi, GRID_POINTS),
                                      np.array([f for f in exact if f_lo <= f <= f_hi], dtype=float)]))
-    gain = _db_trace(-flt.attenuation_db(filt, grid))
-    delay_us = flt.group_delay_s(filt, grid) * 1e6
+    response = filter_response(filt, grid)
+    gain = _db_trace(response.gain_db)
+    delay_us = response.delay_s * 1e6
 
     data: list[dict[str, Any]] = [
         {"type": "scatter", "mode": "lines", "name": "allowed passband loss", "x": typed_array([f_lo, f_high]),
@@ -486,13 +452,6 @@ TRADE_RATES = 12
 """Sample rates tried, log-spaced from 2.2 f_high to 20 f_high."""
 
 
-@lru_cache(maxsize=4096)
-def _least_order_cached(family: str, ratio: float, pass_db: float, stop_db: float) -> int | None:
-    # the least order depends only on f_stop / f_pass and the two losses, so designs are shared
-    d = flt.least_order(family, 1.0, ratio, pass_db, stop_db)
-    return None if d is None else d.order
-
-
 def trade_off_rates(f_high: float) -> np.ndarray:
     """The sample rates the trade-off chart tries: TRADE_RATES log-spaced in [2.2, 20] x f_high."""
     return np.geomspace(2.2 * f_high, 20.0 * f_high, TRADE_RATES)
@@ -503,22 +462,18 @@ def trade_off_chart(result: ChannelResult) -> Chart | None:
     at each sample rate: flatness at f_high, the required rejection at fs - f_high.  Not drawn for
     delta-sigma channels, whose analog filter guards the modulator alias instead."""
     s = result.sampling
-    if s is None or result.channel.kind != "input" or s.delta_sigma or s.required_alias_rejection_db is None:
+    if s is None or result.channel.kind != "input" or s.delta_sigma:
         return None
     f_high = s.band_high_hz
-    if not f_high > 0 or not s.flatness_db > 0:
+    sweep = least_orders_by_rate(s, trade_off_rates(f_high)) if f_high > 0 else None
+    if sweep is None:
         return None
-    stop_db = round(max(s.required_alias_rejection_db, s.flatness_db + 0.01), 9)
-    rates = trade_off_rates(f_high)
+    stop_db = sweep.stop_db
     colours = ("#1565c0", "#2e7d32", "#ef6c00", "#6a1b9a", "#c62828")
     data: list[dict[str, Any]] = []
     for fam, colour in zip(flt.FAMILIES, colours, strict=True):
-        xs, ys = [], []
-        for fs in rates:
-            n = _least_order_cached(fam, round(float(fs) / f_high - 1.0, 12), s.flatness_db, stop_db)
-            if n is not None:
-                xs.append(float(fs))
-                ys.append(float(n))
+        xs = [fs for fs, _ in sweep.orders[fam]]
+        ys = [float(n) for _, n in sweep.orders[fam]]
         if xs:
             data.append({"type": "scatter", "mode": "lines+markers", "name": fam, "x": typed_array(xs),
                          "y": typed_array(ys), "line": {"color": colour, "width": 1.5, "shape": "hv"},
@@ -560,13 +515,13 @@ def hold_chart(result: ChannelResult) -> Chart | None:
     if o is None or result.channel.kind != "output" or not o.rate_hz > 0:
         return None
     fs, f_high = o.rate_hz, o.band_high_hz
-    filt = _reconstruction_filter(result.channel)
+    filt = o.filter
     zoh = o.hold == "zero-order"
     if not zoh and filt is None:
         return None
     grid = np.linspace(0.0, HOLD_SPAN * fs, HOLD_POINTS)
-    with np.errstate(divide="ignore"):
-        envelope = _db_trace(20.0 * np.log10(np.abs(np.sinc(grid / fs)))) if zoh else np.zeros_like(grid)
+    hold_db = hold_response_db(o, grid)
+    envelope = _db_trace(hold_db) if hold_db is not None else np.zeros_like(grid)
     data: list[dict[str, Any]] = []
     if zoh:
         data.append({"type": "scatter", "mode": "lines", "name": "hold |sinc(f/fs)|", "x": _curve(grid),
@@ -574,7 +529,7 @@ def hold_chart(result: ChannelResult) -> Chart | None:
                      "hovertemplate": "%{x:.4~s}Hz: %{y:.2f} dB<extra>hold</extra>"})
     filt_db = None
     if filt is not None:
-        filt_db = _db_trace(-flt.attenuation_db(filt, grid))
+        filt_db = _db_trace(filter_response(filt, grid).gain_db)
         data.append({"type": "scatter", "mode": "lines", "name": f"filter ({_filter_name(filt)})", "x": _curve(grid),
                      "y": _curve(filt_db), "line": {"color": RESPONSE_COLOUR, "width": 1.5, "dash": "dot"},
                      "hovertemplate": "%{x:.4~s}Hz: %{y:.2f} dB<extra>filter</extra>"})
@@ -582,14 +537,9 @@ def hold_chart(result: ChannelResult) -> Chart | None:
             data.append({"type": "scatter", "mode": "lines", "name": "hold and filter", "x": _curve(grid),
                          "y": _curve(_db_trace(envelope + filt_db)), "line": {"color": "#000000", "width": 1},
                          "hovertemplate": "%{x:.4~s}Hz: %{y:.2f} dB<extra>hold and filter</extra>"})
-    images = sorted(f for k in range(1, HOLD_SPAN + 1) for f in (k * fs - f_high, k * fs + f_high)
-                    if 0 < f <= HOLD_SPAN * fs)
-    levels = []
-    for f in images:
-        lv = 20.0 * math.log10(max(abs(float(np.sinc(f / fs))), 1e-10)) if zoh else 0.0
-        if filt is not None:
-            lv -= float(flt.attenuation_db(filt, f))
-        levels.append(max(lv, RESPONSE_FLOOR_DB))
+    image_levels = band_top_images(o, HOLD_SPAN)
+    images = [f for f, _ in image_levels]
+    levels = [max(lv, RESPONSE_FLOOR_DB) for _, lv in image_levels]
     data.append({"type": "scatter", "mode": "markers", "name": "images of the band top (k fs ± f_high)",
                  "x": typed_array(images), "y": typed_array(levels),
                  "text": [_text(f"image at {_hz(f)}: {lv:.1f} dB") for f, lv in zip(images, levels, strict=True)],
@@ -631,7 +581,7 @@ def aperture_chart(result: ChannelResult) -> Chart | None:
         return None
     pitch, nyq = im.pixel_pitch_m, im.spatial_nyquist_cycles_per_m
     grid = np.linspace(0.0, 2.0 * nyq, MTF_POINTS)
-    mtf = np.abs(np.sinc(grid * pitch))
+    mtf = aperture_response(pitch, grid)
     per_mm = grid / 1000.0
     data: list[dict[str, Any]] = [
         {"type": "scatter", "mode": "lines", "name": "pixel aperture |sinc(f p)|", "x": _curve(per_mm),
@@ -645,9 +595,9 @@ def aperture_chart(result: ChannelResult) -> Chart | None:
         shapes.append(_vline(detail / 1000.0, TONE_COLOUR))
         annotations.append(_label(detail / 1000.0, f"required detail {format_quantity(detail, 'cycles/m')} ",
                                   0.93, "right"))
-        if detail <= 2.0 * nyq:
+        if detail <= 2.0 * nyq and im.pixel_aperture_mtf_at_detail is not None:
             data.append({"type": "scatter", "mode": "markers", "name": "at the required detail",
-                         "x": typed_array([detail / 1000.0]), "y": typed_array([abs(float(np.sinc(detail * pitch)))]),
+                         "x": typed_array([detail / 1000.0]), "y": typed_array([im.pixel_aperture_mtf_at_detail]),
                          "marker": {"color": TONE_COLOUR, "size": 10, "symbol": "diamond"},
                          "hovertemplate": "%{x:.4g} cycles/mm: %{y:.3f}<extra>required detail</extra>"})
     layout = _layout(

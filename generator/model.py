@@ -9,13 +9,15 @@ deliberate value from an inherited one.
 from __future__ import annotations
 
 import math
+import tomllib
 from collections.abc import Mapping
 from dataclasses import dataclass, field
-from functools import cached_property
+from functools import cache, cached_property
 from types import MappingProxyType
 from typing import Any
 
-from .quantities import Span, Unit
+from . import schema
+from .quantities import Span, Unit, parse_quantity
 
 
 def id_key(channel_id: str) -> str:
@@ -30,6 +32,23 @@ class SourceRef:
 
     file: str
     line: int = 0
+
+
+@cache
+def key_default(path: str) -> Any:
+    """The default of a key of the format, as the model holds it: a quantity in SI, a gain as a
+    float, anything else as TOML reads it.  Defaults live in :mod:`generator.schema` only; each is
+    parsed once.  ``path`` as :attr:`generator.schema.Key.path`: "signal.flatness",
+    "converters.*.sampling"."""
+    key = next((k for k in (*schema.CHANNEL_KEYS, *schema.SYSTEM_KEYS) if k.path == path), None)
+    if key is None or not key.default:
+        raise KeyError(f"the schema gives no default for {path}")
+    value = tomllib.loads(f"v = {key.default}")["v"]
+    if key.kind == schema.QUANTITY:
+        return parse_quantity(value, key.dims, key.path).value
+    if key.kind == schema.GAIN:
+        return float(value)
+    return value
 
 
 def _empty() -> Mapping[str, Any]:
@@ -67,8 +86,8 @@ class Store:
 class Link:
     id: str
     capacity_bps: float
-    overhead: float = 0.0
-    headroom: float = 0.0
+    overhead: float = key_default("links.*.overhead")
+    headroom: float = key_default("links.*.headroom")
     store: str | None = None
     source: SourceRef = SourceRef("system.toml")
 
@@ -90,7 +109,7 @@ class Converter:
     bits: int
     full_scale: Span
     max_rate: float
-    sampling: str = "simultaneous"
+    sampling: str = key_default("converters.*.sampling")
     rate: float | None = None
     channels: int | None = None
     clock: str | None = None
@@ -112,10 +131,10 @@ class Converter:
 @dataclass(frozen=True)
 class System:
     name: str
-    revision: str = ""
+    revision: str = key_default("system.revision")
     description: str = ""
     record_duration_s: float | None = None
-    format: int = 1
+    format: int = key_default("system.format")
     converters: Mapping[str, Converter] = field(default_factory=_empty)
     clocks: Mapping[str, Clock] = field(default_factory=_empty)
     links: Mapping[str, Link] = field(default_factory=_empty)
@@ -130,13 +149,13 @@ class Signal:
     peak: float | None = None  # SI value of the engineering unit
     resolution: float | None = None
     snr_db: float | None = None
-    flatness_db: float = 0.5
-    out_of_band_dbfs: float = 0.0
-    filtered_to_band: bool = False
+    flatness_db: float = key_default("signal.flatness")
+    out_of_band_dbfs: float = key_default("signal.out_of_band")
+    filtered_to_band: bool = key_default("signal.filtered_to_band")
     image_rejection_db: float | None = None
     limit: float | None = None
     detail_cycles_per_m: float | None = None
-    square_pixels: bool = False
+    square_pixels: bool = key_default("signal.square_pixels")
 
 
 @dataclass(frozen=True)
@@ -165,11 +184,11 @@ class Conversion:
     rate: float | None = None
     bits: int | None = None
     full_scale: Span | None = None
-    gain: float = 1.0
+    gain: float = key_default("conversion.gain")
     jitter: float | None = None  # the channel's own [conversion] jitter: the total, as stated
     container_bits: int | None = None
-    hold: str = "zero-order"
-    sinc_compensation: bool = False
+    hold: str = key_default("conversion.hold")
+    sinc_compensation: bool = key_default("conversion.sinc_compensation")
     stated: frozenset[str] = frozenset()  # keys written in the channel file itself
     aperture_jitter: float | None = None  # the converter's, inherited
     clock_jitter: float | None = None  # the converter's clock's, inherited
@@ -190,8 +209,8 @@ class Filter:
     family: str
     order: int | None = None
     corner: float | None = None
-    ripple_db: float = 0.1
-    stopband_db: float = 80.0
+    ripple_db: float = key_default("filter.ripple")
+    stopband_db: float = key_default("filter.stopband_attenuation")
 
 
 @dataclass(frozen=True)
@@ -214,7 +233,7 @@ class Waiver:
 @dataclass(frozen=True)
 class Safety:
     working_voltage: float | None = None
-    powered_actuator: bool = False
+    powered_actuator: bool = key_default("safety.powered_actuator")
     note: str = ""
 
 

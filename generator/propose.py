@@ -37,9 +37,9 @@ from .analysis import ChannelResult, SystemAnalysis, analyze, analyze_channel
 from .analysis.budgets import BudgetIndex, Budgets, Reach
 from .dsp import filters as flt
 from .load import locate_keys, split_header
-from .model import Channel, Converter, Filter, Spec, id_key
+from .model import Channel, Converter, Filter, Spec, id_key, key_default
 from .quantities import format_quantity
-from .rules import Finding, run_rules
+from .rules import Finding, run_rules, tagged
 
 MAX_ORDER = 12
 """Highest filter order proposed: beyond about a dozen poles an analog filter's component
@@ -52,14 +52,13 @@ to component tolerances to build (common practice, from memory)."""
 RATES_PER_FILTER = 48
 """How many allowed rates above a filter's least possible rate are tried before giving up on it."""
 
-SAMPLING_RULES = ("below-nyquist", "alias-rejection", "band-edge-droop", "filter-missing", "filter-impractical",
-                  "interference-folds")
-AMPLITUDE_RULES = ("clipping", "range-underused", "resolution", "noise-floor", "jitter-limit", "bits-mismatch")
+SAMPLING_RULES = tagged("sampling")
+AMPLITUDE_RULES = tagged("amplitude")
 TARGET_RULES = SAMPLING_RULES + AMPLITUDE_RULES
-# Amplitude rules whose outcome no rate or filter can change (gain, bits, full scale, jitter).
-FIXED_BY_OTHER_MEANS = ("clipping", "range-underused", "resolution", "jitter-limit", "bits-mismatch")
-SHARED_RULES = ("converter-throughput", "shared-rate", "clock-divider", "link-capacity", "storage-capacity",
-                "group-skew")
+"""The rules a design of an input is checked against."""
+FIXED_BY_OTHER_MEANS = tuple(r for r in TARGET_RULES if r in tagged("gain-or-bits"))
+"""Target rules whose outcome no rate or filter can change (gain, bits, full scale, jitter)."""
+SHARED_RULES = tagged("shared")
 
 CRITERIA = ("rate", "order", "delay")
 DEFAULT_PREFERENCE = CRITERIA
@@ -208,8 +207,8 @@ def shaped_filter(family: str, order: int, f_high: float, flatness_db: float,
     (:func:`generator.dsp.filters.corner_for_droop`).  None when the family cannot meet the
     flatness or a stage's Q would exceed :data:`MAX_STAGE_Q`.
     """
-    ripple = flatness_db if family in ("chebyshev1", "elliptic") else 0.1
-    stop = stopband_db if family in ("chebyshev2", "elliptic") else 80.0
+    ripple = flatness_db if family in ("chebyshev1", "elliptic") else key_default("filter.ripple")
+    stop = stopband_db if family in ("chebyshev2", "elliptic") else key_default("filter.stopband_attenuation")
     if family == "elliptic" and stop <= ripple:
         return None
     try:

@@ -191,12 +191,6 @@ def unit_note(key: Key, unit: str) -> str:
             schema.FLOAT: "number"}.get(key.kind, key.kind)
 
 
-def _shown(value: object, dim: str = "") -> str:
-    if isinstance(value, float) and dim:
-        return toml_string(format_quantity(value, dim))
-    return toml_value(value) if not hasattr(value, "low") else "(its range)"
-
-
 def _pick_converter(system: System, kind: str, wanted: str | None) -> str | None:
     want_type = {"input": "adc", "output": "dac"}.get(kind)
     if wanted is not None:

@@ -127,8 +127,9 @@ def test_bridge_chain_with_processing_gain() -> None:
     # sensor: 10 nV x sqrt(1000) = 316.228 nV; signal 8 mV peak = 5.65685 mV rms -> 17888.5 -> 85.0515 dB
     assert_allclose(f["sensor_snr_db"], 85.0515, atol=1e-4)
     # quantization re the signal: 146.2553 + 20 log10(0.8) + 14.0824 = 146.2553 - 1.9382 + 14.0824 = 158.3995
-    assert a.quantization_snr_db is not None
-    assert_allclose(a.quantization_snr_db, 158.3995, atol=1e-3)
+    quantization = next(c for c in a.budget if c.name == "quantization")
+    assert quantization.db is not None
+    assert_allclose(-quantization.db, 158.3995, atol=1e-3)
     # jitter at 1 kHz, 20 ps: 2 pi x 1e3 x 2e-11 = 1.25664e-7 -> 138.0158 dB
     assert_allclose(f["jitter_snr_db"], 138.0158, atol=1e-4)
     # the sensor sets the total: 85.0515 dB, others 50+ dB below it

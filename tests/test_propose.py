@@ -281,3 +281,18 @@ def test_demo_and_broken_demo(tmp_path: Path, capsys: pytest.CaptureFixture[str]
     assert left and all("30 kHz" in m for m in left), left  # only the explained channel remains
     full = run_rules(analyze(load_spec(broken)))
     assert not [f for f in full if not f.waived and f.rule in P.SHARED_RULES]
+
+
+def test_rule_lists_come_from_the_registry_tags() -> None:
+    from generator.rules import all_rules, tagged
+
+    rules = {r.id: r.tags for r in all_rules()}
+    # what no rate or filter can clear is never a target a design is searched for
+    assert set(P.FIXED_BY_OTHER_MEANS) == {r for r in P.TARGET_RULES if "gain-or-bits" in rules[r]}
+    assert all("rate-or-filter" in rules[r] for r in P.TARGET_RULES if r not in P.FIXED_BY_OTHER_MEANS)
+    assert set(P.SHARED_RULES) == {r for r, tags in rules.items() if "shared" in tags}
+    assert not set(P.SHARED_RULES) & set(P.TARGET_RULES)
+    # a tag says one thing: nothing is both fixable and unfixable by a rate or filter
+    assert not [r for r, tags in rules.items() if {"rate-or-filter", "gain-or-bits"} <= tags]
+    with pytest.raises(ValueError, match="unknown tags"):
+        tagged("rate-or-filters")

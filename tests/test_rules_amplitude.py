@@ -16,14 +16,14 @@ import pytest
 
 from generator.analysis import analyze
 from generator.load import load_spec
-from generator.rules import all_rules, run_rules
+from generator.rules import all_rules, run_rules, tagged
 
 from .conftest import DATA, DEMO, MINIMAL, overlay
 
 CASES = DATA / "rules" / "amplitude"
 NAME = re.compile(r"^(?P<rule>[a-z-]+?)-(?P<outcome>fail|pass)(?:-[a-z0-9-]+)?$")
 EXPECTED = re.compile(r"^(?P<file>[^:]+):(?P<line>\d+): (?P<text>.+)$")
-AMPLITUDE_RULES = ("clipping", "range-underused", "resolution", "noise-floor", "jitter-limit", "bits-mismatch")
+AMPLITUDE_RULES = tagged("amplitude")  # the registry says which rules are about amplitude
 
 
 def _cases(outcome: str) -> list[Path]:
@@ -50,6 +50,9 @@ def _findings(case: Path, tmp_path: Path, rule: str) -> list[tuple[str, int, str
 
 def test_every_amplitude_rule_is_registered_with_both_fixtures() -> None:
     ids = {r.id for r in all_rules()}
+    assert AMPLITUDE_RULES, "no rule is tagged amplitude"
+    # every fixture folder is about a rule the registry tags amplitude
+    assert {_rule(c) for c in _cases("fail") + _cases("pass")} <= set(AMPLITUDE_RULES)
     for rule in AMPLITUDE_RULES:
         assert rule in ids
         assert any(_rule(c) == rule for c in _cases("fail")), rule

@@ -9,9 +9,9 @@ Each concern lives in its own module and returns a frozen result with a
 - :mod:`.image`     pixel pitch, spatial Nyquist and frame size (image channels)
 - :mod:`.budgets`   data rates per channel; converter, clock, link, store and group budgets
 
-Every figure key is declared once with :func:`figure`, with its label, display
-unit, formula and source; the README table, the JSON contract and the channel
-pages all read that registry.
+Every figure is declared once, on the result field that carries it, with
+:func:`figure_field`: its key, label, display unit, formula and source; the
+README table, the JSON contract and the channel pages all read that registry.
 """
 
 from __future__ import annotations
@@ -23,7 +23,7 @@ from typing import Any
 from ..model import Channel, Spec
 from .amplitude import AmplitudeResult, analyze_amplitude
 from .budgets import Budgets, ChannelBudget, analyze_budgets
-from .figures import FIGURES, FigureInfo, FigureValue, figure
+from .figures import FIGURES, FigureInfo, FigureValue, figure_field
 from .image import ImageResult, analyze_image
 from .output import OutputResult, analyze_output
 from .sampling import SamplingResult, analyze_sampling
@@ -37,7 +37,7 @@ __all__ = [
     "SystemAnalysis",
     "analyze",
     "analyze_channel",
-    "figure",
+    "figure_field",
 ]
 
 

@@ -19,66 +19,9 @@ from dataclasses import dataclass, replace
 
 from ..dsp import quantization as q
 from ..model import Channel, System
-from .figures import FigureValue, figure
+from .figures import Figures, FigureValue, figure_field, result_class
 
 _SIGNAL = "signal = sine at the channel's peak, rms = peak / sqrt(2)"
-
-PEAK_VOLTS = figure(
-    "peak_volts", "Peak at the converter", "V", "V_pk = peak x sensitivity x gain (input); peak / gain (output)",
-    "requirement; sensor data"
-)
-RANGE_USAGE = figure(
-    "range_usage", "Share of full scale used", "%", "V_pk / full-scale amplitude, amplitude = (high - low) / 2",
-    "definition"
-)
-HEADROOM = figure(
-    "headroom_db", "Headroom to full scale", "dB", "20 log10(full-scale amplitude / V_pk)", "definition"
-)
-JITTER = figure(
-    "sampling_jitter_s", "Rms sampling jitter", "s",
-    "the channel's own jitter, else sqrt(t_aperture^2 + t_clock^2)", "ADI MT-007 (independent jitter adds as rss)"
-)
-LSB_VOLTS = figure(
-    "lsb_volts", "LSB (code width)", "V",
-    "q = FSR / 2^N (some data sheets use FSR / (2^N - 1))", "IEEE Std 1241-2010; ADI MT-001",
-)
-LSB_UNITS = figure(
-    "lsb_units", "LSB in the engineering unit", "<unit>", "q / (sensitivity x gain)", "IEEE Std 1241-2010"
-)
-SQNR = figure(
-    "sqnr_db", "Quantization SNR, full-scale sine", "dB",
-    "SQNR = N x 20 log10(2) + 10 log10(1.5) (= 6.02 N + 1.76 dB)", "ADI MT-001",
-)
-QNOISE = figure(
-    "quantization_noise_volts", "Quantization noise, 0..fs/2", "V", "q / sqrt(12)", "ADI MT-001; Bennett 1948"
-)
-PGAIN = figure(
-    "processing_gain_db", "Processing gain credited", "dB",
-    "10 log10(fs / (2 B)) when filtered_to_band and B < fs / 2, else 0", "ADI MT-001",
-)
-JITTER_SNR = figure(
-    "jitter_snr_db", "Jitter-limited SNR at the band top", "dB", "-20 log10(2 pi f_high t_j)",
-    "ADI MT-007; ADI AN-756",
-)
-SENSOR_SNR = figure(
-    "sensor_snr_db", "Sensor-noise SNR", "dB",
-    f"20 log10(signal rms / sensor noise rms), noise = rms or density x sqrt(B_n); {_SIGNAL}", "definition",
-)
-TOTAL_SNR = figure(
-    "total_snr_db", "Total SNR at the channel's peak", "dB",
-    f"-10 log10(sum 10^(-SNR_i / 10)) over quantization, jitter, sensor; {_SIGNAL}", "ADI MT-003; ADI AN-756",
-)
-ENOB = figure(
-    "enob_bits", "Effective bits at the channel's peak, from noise only (distortion not modelled)", "",
-    "(total SNR - 10 log10(1.5)) / 20 log10(2), not corrected to full scale; the data-sheet ENOB uses SINAD, "
-    "which adds distortion",
-    "ADI MT-003",
-)
-DYNAMIC_RANGE = figure(
-    "dynamic_range_db", "Dynamic range", "dB",
-    "20 log10(full-scale sine rms / rss(quantization, sensor noise)), in B_n", "ADI MT-003",
-)
-
 
 @dataclass(frozen=True)
 class Contribution:
@@ -94,71 +37,77 @@ class Contribution:
     db: float | None
 
 
-@dataclass(frozen=True)
-class AmplitudeResult:
-    kind: str
+@result_class
+class AmplitudeResult(Figures):
+    """Range use, bits and the noise budget of a channel.  A figure whose value is None is left out."""
+
+    peak_volts: float | None = figure_field(
+        "peak_volts", "Peak at the converter", "V",
+        "V_pk = peak x sensitivity x gain (input); peak / gain (output)", "requirement; sensor data",
+        default=None, omit_none=True)
+    range_usage: float | None = figure_field(
+        "range_usage", "Share of full scale used", "%",
+        "V_pk / full-scale amplitude, amplitude = (high - low) / 2", "definition", default=None, omit_none=True)
+    headroom_db: float | None = figure_field(
+        "headroom_db", "Headroom to full scale", "dB", "20 log10(full-scale amplitude / V_pk)", "definition",
+        default=None, omit_none=True)
+    lsb_volts: float = figure_field(
+        "lsb_volts", "LSB (code width)", "V", "q = FSR / 2^N (some data sheets use FSR / (2^N - 1))",
+        "IEEE Std 1241-2010; ADI MT-001", omit_none=True)
+    lsb_units: float | None = figure_field(
+        "lsb_units", "LSB in the engineering unit", "<unit>", "q / (sensitivity x gain)", "IEEE Std 1241-2010",
+        default=None, omit_none=True)
+    sqnr_db: float = figure_field(
+        "sqnr_db", "Quantization SNR, full-scale sine", "dB",
+        "SQNR = N x 20 log10(2) + 10 log10(1.5) (= 6.02 N + 1.76 dB)", "ADI MT-001", omit_none=True)
+    quantization_noise_volts: float = figure_field(
+        "quantization_noise_volts", "Quantization noise, 0..fs/2", "V", "q / sqrt(12)", "ADI MT-001; Bennett 1948",
+        omit_none=True)
+    processing_gain_db: float | None = figure_field(
+        "processing_gain_db", "Processing gain credited", "dB",
+        "10 log10(fs / (2 B)) when filtered_to_band and B < fs / 2, else 0", "ADI MT-001",
+        default=None, omit_none=True)
+    jitter_s: float | None = figure_field(
+        "sampling_jitter_s", "Rms sampling jitter", "s",
+        "the channel's own jitter, else sqrt(t_aperture^2 + t_clock^2)", "ADI MT-007 (independent jitter adds as rss)",
+        default=None, omit_none=True)
+    jitter_snr_db: float | None = figure_field(
+        "jitter_snr_db", "Jitter-limited SNR at the band top", "dB", "-20 log10(2 pi f_high t_j)",
+        "ADI MT-007; ADI AN-756", default=None, omit_none=True)
+    sensor_snr_db: float | None = figure_field(
+        "sensor_snr_db", "Sensor-noise SNR", "dB",
+        f"20 log10(signal rms / sensor noise rms), noise = rms or density x sqrt(B_n); {_SIGNAL}", "definition",
+        default=None, omit_none=True)
+    total_snr_db: float | None = figure_field(
+        "total_snr_db", "Total SNR at the channel's peak", "dB",
+        f"-10 log10(sum 10^(-SNR_i / 10)) over quantization, jitter, sensor; {_SIGNAL}", "ADI MT-003; ADI AN-756",
+        default=None, omit_none=True)
+    enob_bits: float | None = figure_field(
+        "enob_bits", "Effective bits at the channel's peak, from noise only (distortion not modelled)", "",
+        "(total SNR - 10 log10(1.5)) / 20 log10(2), not corrected to full scale; the data-sheet ENOB uses SINAD, "
+        "which adds distortion", "ADI MT-003", default=None, omit_none=True)
+    dynamic_range_db: float | None = figure_field(
+        "dynamic_range_db", "Dynamic range", "dB",
+        "20 log10(full-scale sine rms / rss(quantization, sensor noise)), in B_n", "ADI MT-003",
+        default=None, omit_none=True)
+
     bits: int
     full_scale_range_volts: float
     full_scale_amplitude_volts: float
-    lsb_volts: float
-    sqnr_db: float
-    quantization_noise_volts: float
     unit_factor: float  # SI value of one engineering unit
     noise_bandwidth_hz: float | None = None
     volts_per_unit: float | None = None  # at the converter, per SI unit of the measurand
-    peak_volts: float | None = None
-    processing_gain_db: float | None = None
-    quantization_snr_db: float | None = None  # in band, relative to the signal
-    jitter_s: float | None = None
-    jitter_snr_db: float | None = None
-    sensor_snr_db: float | None = None
-    total_snr_db: float | None = None
-    dynamic_range_db: float | None = None
     budget: tuple[Contribution, ...] = ()
-
-    @property
-    def range_usage(self) -> float | None:
-        return None if self.peak_volts is None else self.peak_volts / self.full_scale_amplitude_volts
-
-    @property
-    def headroom_db(self) -> float | None:
-        if self.peak_volts is None or self.peak_volts <= 0:
-            return None
-        return q.amplitude_db(self.full_scale_amplitude_volts / self.peak_volts)
 
     @property
     def lsb_si(self) -> float | None:
         """The LSB referred to the measurand, SI."""
         return None if self.volts_per_unit is None else self.lsb_volts / self.volts_per_unit
 
-    @property
-    def enob_bits(self) -> float | None:
-        return None if self.total_snr_db is None else q.enob(self.total_snr_db)
-
     def dominant(self) -> Contribution | None:
         """The largest contribution of the budget (the total row excluded)."""
         rows = [c for c in self.budget if c.name != "total" and c.db is not None]
         return max(rows, key=lambda c: c.db or -math.inf) if rows else None
-
-    def figures(self) -> dict[str, FigureValue]:
-        lsb_si = self.lsb_si
-        values: dict[str, float | None] = {
-            PEAK_VOLTS: self.peak_volts,
-            RANGE_USAGE: self.range_usage,
-            HEADROOM: self.headroom_db,
-            LSB_VOLTS: self.lsb_volts,
-            LSB_UNITS: None if lsb_si is None else lsb_si / self.unit_factor,
-            SQNR: self.sqnr_db,
-            QNOISE: self.quantization_noise_volts,
-            PGAIN: self.processing_gain_db,
-            JITTER: self.jitter_s,
-            JITTER_SNR: self.jitter_snr_db,
-            SENSOR_SNR: self.sensor_snr_db,
-            TOTAL_SNR: self.total_snr_db,
-            ENOB: self.enob_bits,
-            DYNAMIC_RANGE: self.dynamic_range_db,
-        }
-        return {k: v for k, v in values.items() if v is not None}
 
     def budget_table(self) -> list[dict[str, FigureValue]]:
         """The noise budget as rows for the channel page (units in the channel's engineering unit)."""
@@ -236,7 +185,6 @@ def analyze_amplitude(channel: Channel, system: System) -> AmplitudeResult | Non
     lsb = q.lsb(span.width, conv.bits)
     qnoise = q.quantization_noise_rms(lsb)
     base = AmplitudeResult(
-        kind=channel.kind,
         bits=conv.bits,
         full_scale_range_volts=span.width,
         full_scale_amplitude_volts=span.amplitude,
@@ -287,7 +235,6 @@ def _budget(channel: Channel, base: AmplitudeResult) -> AmplitudeResult:
         sensor_snr = None if db is None else -db
         rows.append(Contribution("sensor noise", sensor_at_converter, s_si, db))
 
-    q_snr = None if rows[0].db is None else -rows[0].db
     total_snr = None
     if all(r.db is not None for r in rows):
         total_snr = q.power_sum_snr_db(-(r.db or 0.0) for r in rows)
@@ -303,13 +250,20 @@ def _budget(channel: Channel, base: AmplitudeResult) -> AmplitudeResult:
             floor.append(sensor_at_converter)
         dynamic_range = q.snr_db(q.sine_rms(base.full_scale_range_volts / 2.0), q.rss(floor))
 
+    usage = None if peak_volts is None else peak_volts / base.full_scale_amplitude_volts
+    headroom = (None if peak_volts is None or peak_volts <= 0
+                else q.amplitude_db(base.full_scale_amplitude_volts / peak_volts))
+    lsb_si = None if per_unit is None else base.lsb_volts / per_unit
     return replace(
         base,
         noise_bandwidth_hz=bandwidth,
         volts_per_unit=per_unit,
         peak_volts=peak_volts,
+        range_usage=usage,
+        headroom_db=headroom,
+        lsb_units=None if lsb_si is None else lsb_si / base.unit_factor,
+        enob_bits=None if total_snr is None else q.enob(total_snr),
         processing_gain_db=pg,
-        quantization_snr_db=q_snr,
         jitter_s=jitter_used,
         jitter_snr_db=jitter_snr,
         sensor_snr_db=sensor_snr,
@@ -317,3 +271,80 @@ def _budget(channel: Channel, base: AmplitudeResult) -> AmplitudeResult:
         dynamic_range_db=dynamic_range,
         budget=tuple(rows),
     )
+
+
+# ------------------------------------------------------------------ what would fix it (rule messages)
+
+TARGET_USAGE = 0.9
+"""Share of full scale a suggested gain aims at, leaving about 1 dB of headroom (common practice)."""
+
+
+def gain_for_usage(channel: Channel, a: AmplitudeResult, target: float = TARGET_USAGE) -> float:
+    """The gain that puts the peak at ``target`` of the full-scale amplitude: on an input the
+    converter sees peak x gain, so g' = g x target / usage; on an output it must produce peak / gain,
+    so g' = g x usage / target (usage = V_pk / full-scale amplitude, as :attr:`AmplitudeResult.range_usage`)."""
+    usage = a.range_usage or 0.0
+    gain = channel.conversion.gain
+    return gain * target / usage if channel.kind == "input" else gain * usage / target
+
+
+def over_full_scale_db(a: AmplitudeResult) -> float | None:
+    """How far the peak at the converter lies beyond the full-scale amplitude: 20 log10(V_pk / A_FS)
+    (ADI MT-001 amplitude ratio in dB); None without a peak."""
+    if a.peak_volts is None:
+        return None
+    return q.amplitude_db(a.peak_volts / a.full_scale_amplitude_volts)
+
+
+@dataclass(frozen=True)
+class ResolutionFix:
+    bits: int  # fewest bits whose LSB meets the resolution
+    gain_factor: float  # how many times the gain must rise for the same (LSB / resolution)
+
+
+def resolution_fix(a: AmplitudeResult, wanted: float) -> ResolutionFix | None:
+    """Fewest bits N with FSR / 2^N <= resolution x volts per unit (:func:`generator.dsp.quantization.bits_for_lsb`,
+    IEEE Std 1241-2010 code width), and the gain factor LSB / resolution that would do instead;
+    None when the LSB in the measurand is not known."""
+    lsb_si = a.lsb_si
+    if lsb_si is None or not wanted > 0:
+        return None
+    per_unit = a.volts_per_unit or 1.0
+    return ResolutionFix(q.bits_for_lsb(a.full_scale_range_volts, wanted * per_unit), lsb_si / wanted)
+
+
+def snr_needed_from(a: AmplitudeResult, name: str, required_db: float) -> float | None:
+    """The SNR the named contribution must reach for the power sum of the budget to meet
+    ``required_db``: -10 log10(10^(-SNR_req / 10) - sum over the others of 10^(-SNR_i / 10))
+    (ADI MT-003); None when the others alone already miss it."""
+    others = [-(c.db or 0.0) for c in a.budget if c.name not in (name, "total") and c.db is not None]
+    room = math.pow(10.0, -required_db / 10.0) - math.fsum(math.pow(10.0, -s / 10.0) for s in others)
+    return None if room <= 0 else -q.power_db(room)
+
+
+def jitter_for_snr(channel: Channel, snr_db: float) -> float | None:
+    """Largest rms jitter with which a sine at the band top still reaches ``snr_db``:
+    t_j = 10^(-SNR/20) / (2 pi f_high) (:func:`generator.dsp.quantization.max_jitter`, ADI MT-007);
+    None without a band."""
+    band = channel.signal.band
+    if band is None or not band[1] > 0:
+        return None
+    return q.max_jitter(snr_db, band[1])
+
+
+@dataclass(frozen=True)
+class SensorNoiseFix:
+    rms: float  # largest sensor noise, SI of the measurand, rms in the noise bandwidth
+    density: float | None  # the same per root hertz, for a sensor specified by its density
+
+
+def sensor_noise_for_snr(channel: Channel, a: AmplitudeResult, snr_db: float) -> SensorNoiseFix | None:
+    """Largest sensor noise that keeps the sensor's part of the budget at ``snr_db`` below a sine at
+    the peak: rms = (peak / sqrt 2) / 10^(SNR/20); a density divides that by sqrt(B_n) (ADI MT-003).
+    None without a peak or a sensor noise."""
+    peak, noise = channel.signal.peak, channel.sensor.noise
+    if peak is None or noise is None:
+        return None
+    allowed = q.sine_rms(peak) / q.amplitude_ratio(snr_db)
+    density = allowed / math.sqrt(a.noise_bandwidth_hz) if noise.density and a.noise_bandwidth_hz else None
+    return SensorNoiseFix(allowed, density)

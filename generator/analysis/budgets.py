@@ -32,15 +32,7 @@ from typing import Any
 from ..dsp import budgets as dsp
 from ..dsp import filters, quantization
 from ..model import Channel, Clock, Converter, Filter, Group, Link, Spec, Store, id_key
-from .figures import FigureValue, figure
-
-DATA_RATE = figure("data_rate_bps", "Data rate", "bit/s", "fs x C (image: frame rate x W x H x C)",
-                   "IEC 60908 (fs N channels); containers from the converter")
-PAYLOAD_RATE = figure("payload_rate_bps", "Payload rate (packed bits)", "bit/s",
-                      "fs x N (image: frame rate x W x H x N)", "IEC 60908 (fs N channels)")
-STATED_BASIS = figure("stated_data_rate_basis", "Which data rate the stated one matches", "",
-                      "containers (fs x C) or packed (fs x N), within 1 %; null when it matches neither",
-                      "definition")
+from .figures import Figures, figure_field, result_class
 
 STATED_TOLERANCE = 0.01
 """How far a figure the spec states may differ from the computed one: 1 % (relative)."""
@@ -55,21 +47,24 @@ def stated_rate_basis(said: float, containers_bps: float, packed_bps: float) -> 
     return None
 
 
-@dataclass(frozen=True)
-class ChannelBudget:
+def _stated(b: ChannelBudget) -> bool:
+    return b.stated_data_rate_bps is not None
+
+
+@result_class
+class ChannelBudget(Figures):
     """What one channel puts on the shared hardware."""
 
-    data_rate_bps: float
-    payload_rate_bps: float
+    data_rate_bps: float = figure_field("data_rate_bps", "Data rate", "bit/s", "fs x C (image: frame rate x W x H x C)",
+                                        "IEC 60908 (fs N channels); containers from the converter")
+    payload_rate_bps: float = figure_field("payload_rate_bps", "Payload rate (packed bits)", "bit/s",
+                                           "fs x N (image: frame rate x W x H x N)", "IEC 60908 (fs N channels)")
+    stated_data_rate_basis: str | None = figure_field(  # there only when the spec states a data rate
+        "stated_data_rate_basis", "Which data rate the stated one matches", "",
+        "containers (fs x C) or packed (fs x N), within 1 %; null when it matches neither", "definition",
+        default=None, shown=_stated)
     lsb_volts: float | None = None  # for the stated-figure check
     stated_data_rate_bps: float | None = None
-
-    def figures(self) -> dict[str, FigureValue]:
-        out: dict[str, FigureValue] = {DATA_RATE: self.data_rate_bps, PAYLOAD_RATE: self.payload_rate_bps}
-        if self.stated_data_rate_bps is not None:
-            out[STATED_BASIS] = stated_rate_basis(self.stated_data_rate_bps, self.data_rate_bps,
-                                                  self.payload_rate_bps)
-        return out
 
 
 @dataclass(frozen=True)
@@ -220,8 +215,11 @@ def channel_budget(ch: Channel) -> ChannelBudget | None:
     container = conv.container_bits or conv.bits
     n = _samples_per_frame(ch)
     lsb = quantization.lsb(conv.full_scale.width, conv.bits) if conv.full_scale is not None else None
-    return ChannelBudget(dsp.stream_rate(conv.rate * n, container), dsp.payload_rate(conv.rate * n, conv.bits), lsb,
-                         ch.stated.data_rate_bps)
+    data_rate = dsp.stream_rate(conv.rate * n, container)
+    payload = dsp.payload_rate(conv.rate * n, conv.bits)
+    said = ch.stated.data_rate_bps
+    return ChannelBudget(data_rate_bps=data_rate, payload_rate_bps=payload, lsb_volts=lsb, stated_data_rate_bps=said,
+                         stated_data_rate_basis=None if said is None else stated_rate_basis(said, data_rate, payload))
 
 
 # ---------------------------------------------------------------------- converters

@@ -8,70 +8,50 @@ pixel height (the active area's height) and its spatial Nyquist frequency is tha
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
 
 from ..dsp import imaging as dsp
 from ..model import Channel, System
-from .figures import FigureValue, figure
+from .figures import Figures, figure_field, result_class
 
 # Pitches closer than this (relative) count as square: data-sheet areas are often rounded.
 SQUARE_TOLERANCE = 0.005
 
-FRAME_RATE = figure("frame_rate_hz", "Frame (or line) rate", "Hz", "as specified", "requirement")
-PITCH = figure("pixel_pitch_m", "Pixel pitch (the coarser axis; along the line for a line sensor)", "m",
-               "max(width / pixels across, height / pixels down)", "Holst, CCD Arrays (from memory)")
-PITCH_X = figure("pixel_pitch_x_m", "Pixel pitch across", "m", "active width / pixels across",
-                 "Holst, CCD Arrays (from memory)")
-PITCH_Y = figure("pixel_pitch_y_m", "Pixel pitch down (pixel height for a line sensor)", "m",
-                 "active height / pixels down", "Holst, CCD Arrays (from memory)")
-NYQUIST = figure("spatial_nyquist_cycles_per_m", "Spatial Nyquist frequency", "cycles/m",
-                 "1 / (2 p), p = pixel_pitch", "Shannon 1949, in space; Holst (from memory)")
-NYQUIST_X = figure("spatial_nyquist_x_cycles_per_m", "Spatial Nyquist frequency across", "cycles/m",
-                   "1 / (2 p_x)", "Shannon 1949, in space")
-NYQUIST_Y = figure("spatial_nyquist_y_cycles_per_m", "Spatial Nyquist frequency down (area sensors)", "cycles/m",
-                   "1 / (2 p_y)", "Shannon 1949, in space")
-SQUARE = figure("square_pixels", "Pixels are square", "", "|p_x - p_y| <= 0.5 % of the larger", "definition")
-MTF_NYQUIST = figure("pixel_aperture_mtf_at_nyquist", "Full-fill pixel aperture response at spatial Nyquist", "",
-                     "|sinc(f_N p)| = 2/pi", "box aperture; Holst (from memory)")
-MTF_DETAIL = figure("pixel_aperture_mtf_at_detail", "Full-fill pixel aperture response at the required detail",
-                    "", "|sinc(detail p)|", "box aperture; Holst (from memory)")
-FRAME_BITS = figure("frame_bits", "Bits per frame (or line), packed", "bit", "W x H x N", "arithmetic")
-FRAME_BITS_STORED = figure("frame_bits_stored", "Bits per frame (or line) in storage containers", "bit",
-                           "W x H x container_bits", "arithmetic")
+@result_class
+class ImageResult(Figures):
+    """Pitch, spatial Nyquist, aperture response and frame size of an image channel; every figure is
+    always there (null when it does not apply)."""
 
-
-@dataclass(frozen=True)
-class ImageResult:
-    pixels: tuple[int, int]
-    line_sensor: bool
-    frame_rate_hz: float | None
-    pixel_pitch_m: float
-    pixel_pitch_x_m: float
-    pixel_pitch_y_m: float
-    spatial_nyquist_cycles_per_m: float
-    spatial_nyquist_x_cycles_per_m: float
-    spatial_nyquist_y_cycles_per_m: float | None  # None for a line sensor
-    square_pixels: bool
-    pixel_aperture_mtf_at_nyquist: float
-    pixel_aperture_mtf_at_detail: float | None
-    frame_bits: int | None
-    frame_bits_stored: int | None
-
-    def figures(self) -> dict[str, FigureValue]:
-        return {
-            FRAME_RATE: self.frame_rate_hz,
-            PITCH: self.pixel_pitch_m,
-            PITCH_X: self.pixel_pitch_x_m,
-            PITCH_Y: self.pixel_pitch_y_m,
-            NYQUIST: self.spatial_nyquist_cycles_per_m,
-            NYQUIST_X: self.spatial_nyquist_x_cycles_per_m,
-            NYQUIST_Y: self.spatial_nyquist_y_cycles_per_m,
-            SQUARE: self.square_pixels,
-            MTF_NYQUIST: self.pixel_aperture_mtf_at_nyquist,
-            MTF_DETAIL: self.pixel_aperture_mtf_at_detail,
-            FRAME_BITS: self.frame_bits,
-            FRAME_BITS_STORED: self.frame_bits_stored,
-        }
+    frame_rate_hz: float | None = figure_field("frame_rate_hz", "Frame (or line) rate", "Hz", "as specified",
+                                               "requirement")
+    pixel_pitch_m: float = figure_field(
+        "pixel_pitch_m", "Pixel pitch (the coarser axis; along the line for a line sensor)", "m",
+        "max(width / pixels across, height / pixels down)", "Holst, CCD Arrays (from memory)")
+    pixel_pitch_x_m: float = figure_field("pixel_pitch_x_m", "Pixel pitch across", "m",
+                                          "active width / pixels across", "Holst, CCD Arrays (from memory)")
+    pixel_pitch_y_m: float = figure_field("pixel_pitch_y_m", "Pixel pitch down (pixel height for a line sensor)",
+                                          "m", "active height / pixels down", "Holst, CCD Arrays (from memory)")
+    spatial_nyquist_cycles_per_m: float = figure_field(
+        "spatial_nyquist_cycles_per_m", "Spatial Nyquist frequency", "cycles/m", "1 / (2 p), p = pixel_pitch",
+        "Shannon 1949, in space; Holst (from memory)")
+    spatial_nyquist_x_cycles_per_m: float = figure_field(
+        "spatial_nyquist_x_cycles_per_m", "Spatial Nyquist frequency across", "cycles/m", "1 / (2 p_x)",
+        "Shannon 1949, in space")
+    spatial_nyquist_y_cycles_per_m: float | None = figure_field(  # None for a line sensor
+        "spatial_nyquist_y_cycles_per_m", "Spatial Nyquist frequency down (area sensors)", "cycles/m",
+        "1 / (2 p_y)", "Shannon 1949, in space")
+    square_pixels: bool = figure_field("square_pixels", "Pixels are square", "",
+                                       "|p_x - p_y| <= 0.5 % of the larger", "definition")
+    pixel_aperture_mtf_at_nyquist: float = figure_field(
+        "pixel_aperture_mtf_at_nyquist", "Full-fill pixel aperture response at spatial Nyquist", "",
+        "|sinc(f_N p)| = 2/pi", "box aperture; Holst (from memory)")
+    pixel_aperture_mtf_at_detail: float | None = figure_field(
+        "pixel_aperture_mtf_at_detail", "Full-fill pixel aperture response at the required detail", "",
+        "|sinc(detail p)|", "box aperture; Holst (from memory)")
+    frame_bits: int | None = figure_field("frame_bits", "Bits per frame (or line), packed", "bit", "W x H x N",
+                                          "arithmetic")
+    frame_bits_stored: int | None = figure_field(
+        "frame_bits_stored", "Bits per frame (or line) in storage containers", "bit", "W x H x container_bits",
+        "arithmetic")
 
 
 def analyze_image(channel: Channel, system: System) -> ImageResult | None:
@@ -93,8 +73,6 @@ def analyze_image(channel: Channel, system: System) -> ImageResult | None:
     stored = None if conv.container_bits is None else dsp.frame_bits(w, h, conv.container_bits)
     rate = conv.rate
     return ImageResult(
-        pixels=(w, h),
-        line_sensor=line,
         frame_rate_hz=rate,
         pixel_pitch_m=pitch,
         pixel_pitch_x_m=px,
@@ -109,3 +87,18 @@ def analyze_image(channel: Channel, system: System) -> ImageResult | None:
         frame_bits=bits,
         frame_bits_stored=stored,
     )
+
+
+# ------------------------------------------------------------------ what would fix it (rule messages)
+
+
+def pitch_for_detail(detail_cycles_per_m: float) -> float:
+    """Coarsest pixel pitch whose spatial Nyquist frequency 1 / (2 p) reaches the detail:
+    p = 1 / (2 detail) (the sampling theorem in space; Holst, from memory)."""
+    return 1.0 / (2.0 * detail_cycles_per_m)
+
+
+def magnification_for_detail(im: ImageResult, detail_cycles_per_m: float) -> float:
+    """Optical magnification that brings the detail down to the sensor's spatial Nyquist frequency:
+    detail / f_N."""
+    return detail_cycles_per_m / im.spatial_nyquist_cycles_per_m

@@ -20,85 +20,15 @@ What each figure means, and which part of the chain sets it:
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field, replace
+from dataclasses import dataclass, replace
 from typing import Any
 
 from ..dsp import filters as flt
 from ..dsp import folding, quantization
 from ..dsp import sampling as dsp
-from ..model import Channel, Converter, System, Tone
-from .figures import FigureValue, figure
+from ..model import Channel, Converter, System, Tone, key_default
+from .figures import Figures, FigureValue, figure_field, result_class
 
-SAMPLE_RATE = figure("sample_rate_hz", "Sample rate", "Hz", "fs", "as specified or inherited from the converter")
-NYQUIST = figure("nyquist_hz", "Nyquist frequency", "Hz", "f_N = fs / 2", "Shannon 1949; Nyquist 1928")
-BAND_LOW = figure("band_low_hz", "Band, low edge", "Hz", "as specified", "requirement")
-BAND_HIGH = figure("band_high_hz", "Band, high edge", "Hz", "f_high, as specified", "requirement")
-OSR = figure("rate_over_nyquist", "Rate over the band's Nyquist rate", "", "fs / (2 f_high)", "ADI MT-002")
-FIRST_ALIAS = figure("first_alias_hz", "First alias onto the band top", "Hz", "fs - f_high", "ADI MT-002")
-
-FILTER = figure("anti_alias_filter", "Anti-aliasing filter", "",
-                "family, order, corner_hz (-3 dB: butterworth, bessel; ripple edge: chebyshev1, elliptic; "
-                "stopband edge: chebyshev2), ripple_db, stopband_db, proposed",
-                "as specified; sized by specfold when only the family is given")
-DROOP = figure("band_edge_droop_db", "Filter loss at the band top", "dB", "A(f_high) = -20 log10 |H(j 2 pi f_high)|",
-               "Williams & Taylor; scipy.signal analog prototypes")
-PASSBAND_LOSS = figure("passband_loss_db", "Largest filter loss inside the band", "dB",
-                       "max A(f) for f_low <= f <= f_high (ripple troughs, the DC loss of even-order ripple "
-                       "families, the band top)", "Williams & Taylor; scipy.signal analog prototypes")
-PASSBAND_LOSS_AT = figure("passband_loss_at_hz", "Where the largest loss inside the band lies", "Hz",
-                          "argmax A(f), f_low <= f <= f_high", "Williams & Taylor")
-ALIAS_REJECTION = figure("alias_rejection_db", "Alias rejection (least, over every band that folds onto the band)",
-                         "dB", "min over f in k fs - f_high .. k fs + f_high (k >= 1) of A_analog(f) + A_digital(f); "
-                         "A_digital = 0 within the decimation filter's stopband edge of a multiple of f_mod",
-                         "Oppenheim & Schafer ch. 4; ADI MT-002; decimation filter from system.toml")
-ALIAS_WORST = figure("alias_worst_hz", "Where the least alias rejection lies", "Hz",
-                     "argmin of the above; null when it is the limit as f grows without bound "
-                     "(even-order chebyshev2 and elliptic filters)", "Oppenheim & Schafer ch. 4")
-ALIAS_ZONE = figure("alias_worst_band", "Kind of band the least alias rejection lies in", "",
-                    "fold (k fs +/- f_high) | transition (the decimation filter's transition band) | "
-                    "modulator (near a multiple of f_mod)", "ADI MT-002")
-ALIAS_SOURCE = figure("alias_rejection_source", "What sets the alias rejection", "",
-                      "analog filter | digital decimation filter | none", "specfold")
-FILTER_ALIAS = figure("filter_rejection_at_first_alias_db", "Analog filter loss at the first alias", "dB",
-                      "A_analog(fs - f_high)", "Williams & Taylor")
-GD_DC = figure("group_delay_dc_s", "Filter group delay at DC", "s", "tau(0) = sum -Re p / |p|^2",
-               "from the pole positions; Williams & Taylor")
-GD_EDGE = figure("group_delay_band_edge_s", "Filter group delay at the band top", "s",
-                 "tau(w) = sum -s_p / ((w - w_p)^2 + s_p^2)", "from the pole positions; Williams & Taylor")
-PEAK_DBFS = figure("peak_level_dbfs", "Signal peak at the converter", "dBFS",
-                   "20 log10(peak x sensitivity x gain / full-scale amplitude), full-scale amplitude = "
-                   "(high - low) / 2", "AES17 (sine-referenced dBFS)")
-FLOOR = figure("alias_floor_dbfs", "Floor that aliases must stay under", "dBFS",
-               "min(peak, 0 dBFS) - snr; else -(6.0206 N + 1.7609)", "ADI MT-001, MT-002")
-REQUIRED = figure("required_alias_rejection_db", "Alias rejection required", "dB",
-                  "out_of_band - floor", "ADI MT-002")
-STOP_EDGE = figure("filter_stop_edge_hz", "Frequency the analog filter must reject at", "Hz",
-                   "fs - f_high; on delta-sigma: f_mod - f_high", "ADI MT-002")
-MIN_ORDER = figure("min_filter_order", "Least filter order per family", "",
-                   "least n whose design, cornered to lose exactly the flatness at f_high, gives an alias "
-                   "rejection (as above) >= required; null above 20",
-                   "starts from scipy.signal buttord/cheb1ord/cheb2ord/ellipord (analog=True); bessel by search")
-MOD_RATE = figure("modulator_rate_hz", "Delta-sigma modulator rate", "Hz", "f_mod (or the least OSR x fs)",
-                  "system.toml")
-MOD_ALIAS = figure("modulator_alias_hz", "First analog alias through the modulator", "Hz", "f_mod - f_high",
-                   "derived from the sampling theorem")
-MOD_REJECTION = figure("modulator_alias_rejection_db", "Analog filter loss over the modulator's alias bands", "dB",
-                       "min A_analog(f) within the decimation stopband edge of m f_mod, m >= 1", "Williams & Taylor")
-DIG_PASS = figure("digital_passband_hz", "Decimation filter passband edge", "Hz", "passband x fs", "system.toml")
-DIG_STOP = figure("digital_stopband_hz", "Decimation filter stopband edge", "Hz", "stopband x fs", "system.toml")
-DIG_REJECTION = figure("digital_rejection_db", "Decimation filter stopband rejection", "dB", "as specified",
-                       "system.toml")
-STAGES = figure("stages", "Filter stages (f0, Q)", "",
-                "poles of the prototype in pairs: f0 = |p| / 2 pi, Q = |p| / (2 |Re p|); a real pole is a "
-                "first-order stage (q null); ascending Q",
-                "Williams & Taylor; Zumbahlen, Linear Circuit Design Handbook ch. 8")
-TONES = figure("interference_folds", "Where each declared tone lands", "",
-               "f_a = |f - fs round(f / fs)|, zone = floor(2 f / fs) + 1, landed = level - A(f)",
-               "Oppenheim & Schafer ch. 4; ADI MT-002")
-
-ANALOG = folding.ANALOG
-DIGITAL = folding.DIGITAL
-NONE = folding.NONE
 DecimationFilter = folding.Decimation
 
 
@@ -109,7 +39,6 @@ class ToneFold:
     index: int
     frequency_hz: float
     source: str
-    line: int
     alias_hz: float
     zone: int
     inverted: bool
@@ -144,101 +73,164 @@ class ToneFold:
         }
 
 
-@dataclass(frozen=True)
-class SamplingResult:
-    rate_hz: float
-    band_low_hz: float
-    band_high_hz: float
-    nyquist_hz: float
-    rate_over_nyquist: float
-    first_alias_hz: float
+def _input(s: SamplingResult) -> bool:
+    return s.kind == "input"
+
+
+def _decimated(s: SamplingResult) -> bool:
+    return s.kind == "input" and s.decimation is not None
+
+
+def _filter_json(f: flt.AnalogFilter | None, s: SamplingResult) -> FigureValue:
+    return None if f is None else {"family": f.family, "order": f.order, "corner_hz": f.corner_hz,
+                                   "ripple_db": f.ripple_db, "stopband_db": f.stopband_db,
+                                   "proposed": s.filter_proposed}
+
+
+def _least_orders_json(least: dict[str, flt.OrderDesign | None], s: SamplingResult) -> FigureValue:
+    if not least:
+        return None
+    return {fam: None if d is None else {"order": d.order, "corner_hz": d.corner_hz} for fam, d in least.items()}
+
+
+def _zone_json(zone: str, s: SamplingResult) -> FigureValue:
+    return None if s.alias_rejection_db is None else zone
+
+
+def _tones_json(tones: tuple[ToneFold, ...], s: SamplingResult) -> FigureValue:
+    return [t.as_dict() for t in tones]
+
+
+def _finite_json(value: float | None, s: object) -> FigureValue:
+    """A figure that may be infinite (the limit as f grows without bound) as JSON has it: null."""
+    return value if value is not None and math.isfinite(value) else None
+
+
+@result_class
+class SamplingResult(Figures):
+    """Rate and folding figures of an input or output channel; the anti-aliasing filter's of an input.
+
+    Fields are in the order of the figures; the figures from ``anti_alias_filter`` on are an
+    input's only, and the decimation filter's only with one."""
+
+    rate_hz: float = figure_field("sample_rate_hz", "Sample rate", "Hz", "fs",
+                                  "as specified or inherited from the converter")
+    nyquist_hz: float = figure_field("nyquist_hz", "Nyquist frequency", "Hz", "f_N = fs / 2",
+                                     "Shannon 1949; Nyquist 1928")
+    band_low_hz: float = figure_field("band_low_hz", "Band, low edge", "Hz", "as specified", "requirement")
+    band_high_hz: float = figure_field("band_high_hz", "Band, high edge", "Hz", "f_high, as specified", "requirement")
+    rate_over_nyquist: float = figure_field("rate_over_nyquist", "Rate over the band's Nyquist rate", "",
+                                            "fs / (2 f_high)", "ADI MT-002")
+    first_alias_hz: float = figure_field("first_alias_hz", "First alias onto the band top", "Hz", "fs - f_high",
+                                         "ADI MT-002")
+    filter: flt.AnalogFilter | None = figure_field(
+        "anti_alias_filter", "Anti-aliasing filter", "",
+        "family, order, corner_hz (-3 dB: butterworth, bessel; ripple edge: chebyshev1, elliptic; "
+        "stopband edge: chebyshev2), ripple_db, stopband_db, proposed",
+        "as specified; sized by specfold when only the family is given",
+        default=None, encode=_filter_json, shown=_input)
+    stages: list[dict[str, float | None]] | None = figure_field(
+        "stages", "Filter stages (f0, Q)", "",
+        "poles of the prototype in pairs: f0 = |p| / 2 pi, Q = |p| / (2 |Re p|); a real pole is a "
+        "first-order stage (q null); ascending Q",
+        "Williams & Taylor; Zumbahlen, Linear Circuit Design Handbook ch. 8", default=None, shown=_input)
+    band_edge_droop_db: float | None = figure_field(
+        "band_edge_droop_db", "Filter loss at the band top", "dB", "A(f_high) = -20 log10 |H(j 2 pi f_high)|",
+        "Williams & Taylor; scipy.signal analog prototypes", default=None, shown=_input)
+    passband_loss_db: float | None = figure_field(
+        "passband_loss_db", "Largest filter loss inside the band", "dB",
+        "max A(f) for f_low <= f <= f_high (ripple troughs, the DC loss of even-order ripple "
+        "families, the band top)", "Williams & Taylor; scipy.signal analog prototypes", default=None, shown=_input)
+    passband_loss_at_hz: float | None = figure_field(
+        "passband_loss_at_hz", "Where the largest loss inside the band lies", "Hz",
+        "argmax A(f), f_low <= f <= f_high", "Williams & Taylor", default=None, shown=_input)
+    filter_rejection_at_first_alias_db: float | None = figure_field(
+        "filter_rejection_at_first_alias_db", "Analog filter loss at the first alias", "dB",
+        "A_analog(fs - f_high)", "Williams & Taylor", default=None, shown=_input)
+    alias_rejection_db: float | None = figure_field(
+        "alias_rejection_db", "Alias rejection (least, over every band that folds onto the band)", "dB",
+        "min over f in k fs - f_high .. k fs + f_high (k >= 1) of A_analog(f) + A_digital(f); "
+        "A_digital = 0 within the decimation filter's stopband edge of a multiple of f_mod",
+        "Oppenheim & Schafer ch. 4; ADI MT-002; decimation filter from system.toml", default=None, shown=_input)
+    alias_worst_hz: float | None = figure_field(  # math.inf: the limit as f grows without bound
+        "alias_worst_hz", "Where the least alias rejection lies", "Hz",
+        "argmin of the above; null when it is the limit as f grows without bound "
+        "(even-order chebyshev2 and elliptic filters)", "Oppenheim & Schafer ch. 4",
+        default=None, encode=_finite_json, shown=_input)
+    alias_worst_band: str = figure_field(
+        "alias_worst_band", "Kind of band the least alias rejection lies in", "",
+        "fold (k fs +/- f_high) | transition (the decimation filter's transition band) | "
+        "modulator (near a multiple of f_mod)", "ADI MT-002", default=folding.FOLD, encode=_zone_json, shown=_input)
+    alias_rejection_source: str = figure_field(
+        "alias_rejection_source", "What sets the alias rejection", "",
+        "analog filter | digital decimation filter | none", "specfold", default=folding.NONE, shown=_input)
+    group_delay_dc_s: float | None = figure_field(
+        "group_delay_dc_s", "Filter group delay at DC", "s", "tau(0) = sum -Re p / |p|^2",
+        "from the pole positions; Williams & Taylor", default=None, shown=_input)
+    group_delay_band_edge_s: float | None = figure_field(
+        "group_delay_band_edge_s", "Filter group delay at the band top", "s",
+        "tau(w) = sum -s_p / ((w - w_p)^2 + s_p^2)", "from the pole positions; Williams & Taylor",
+        default=None, shown=_input)
+    peak_dbfs: float | None = figure_field(
+        "peak_level_dbfs", "Signal peak at the converter", "dBFS",
+        "20 log10(peak x sensitivity x gain / full-scale amplitude), full-scale amplitude = "
+        "(high - low) / 2", "AES17 (sine-referenced dBFS)", default=None, shown=_input)
+    floor_dbfs: float | None = figure_field(
+        "alias_floor_dbfs", "Floor that aliases must stay under", "dBFS",
+        "min(peak, 0 dBFS) - snr; else -(6.0206 N + 1.7609)", "ADI MT-001, MT-002", default=None, shown=_input)
+    required_alias_rejection_db: float | None = figure_field(
+        "required_alias_rejection_db", "Alias rejection required", "dB", "out_of_band - floor", "ADI MT-002",
+        default=None, shown=_input)
+    stop_edge_hz: float | None = figure_field(
+        "filter_stop_edge_hz", "Frequency the analog filter must reject at", "Hz",
+        "fs - f_high; on delta-sigma: f_mod - f_high", "ADI MT-002", default=None, shown=_input)
+    least_orders: dict[str, flt.OrderDesign | None] = figure_field(
+        "min_filter_order", "Least filter order per family", "",
+        "least n whose design, cornered to lose exactly the flatness at f_high, gives an alias "
+        "rejection (as above) >= required; null above 20",
+        "starts from scipy.signal buttord/cheb1ord/cheb2ord/ellipord (analog=True); bessel by search",
+        default_factory=dict, encode=_least_orders_json, shown=_input)
+    modulator_rate_hz: float | None = figure_field(  # on every delta-sigma input whose rate is known
+        "modulator_rate_hz", "Delta-sigma modulator rate", "Hz", "f_mod (or the least OSR x fs)", "system.toml",
+        default=None, shown=_decimated)
+    modulator_alias_hz: float | None = figure_field(
+        "modulator_alias_hz", "First analog alias through the modulator", "Hz", "f_mod - f_high",
+        "derived from the sampling theorem", default=None, shown=_decimated)
+    modulator_alias_rejection_db: float | None = figure_field(
+        "modulator_alias_rejection_db", "Analog filter loss over the modulator's alias bands", "dB",
+        "min A_analog(f) within the decimation stopband edge of m f_mod, m >= 1", "Williams & Taylor",
+        default=None, shown=_decimated)
+    digital_passband_hz: float | None = figure_field(
+        "digital_passband_hz", "Decimation filter passband edge", "Hz", "passband x fs", "system.toml",
+        default=None, shown=_decimated)
+    digital_stopband_hz: float | None = figure_field(
+        "digital_stopband_hz", "Decimation filter stopband edge", "Hz", "stopband x fs", "system.toml",
+        default=None, shown=_decimated)
+    digital_rejection_db: float | None = figure_field(
+        "digital_rejection_db", "Decimation filter stopband rejection", "dB", "as specified", "system.toml",
+        default=None, shown=_decimated)
+    tones: tuple[ToneFold, ...] = figure_field(
+        "interference_folds", "Where each declared tone lands", "",
+        "f_a = |f - fs round(f / fs)|, zone = floor(2 f / fs) + 1, landed = level - A(f)",
+        "Oppenheim & Schafer ch. 4; ADI MT-002", default=(), encode=_tones_json, shown=_input)
+
     kind: str = "input"
     architecture: str = ""
-    flatness_db: float = 0.5
-    out_of_band_dbfs: float = 0.0
-    filter: flt.AnalogFilter | None = None
+    flatness_db: float = key_default("signal.flatness")
+    out_of_band_dbfs: float = key_default("signal.out_of_band")
     filter_proposed: bool = False
     filter_problem: str = ""  # why a declared [filter] could not be designed
     decimation: DecimationFilter | None = None
     delta_sigma: bool = False
-    band_edge_droop_db: float | None = None
-    passband_loss_db: float | None = None
-    passband_loss_at_hz: float | None = None
-    filter_rejection_at_first_alias_db: float | None = None
-    alias_rejection_db: float | None = None
-    alias_worst_hz: float | None = None  # math.inf: the limit as f grows without bound
-    alias_worst_band: str = folding.FOLD
-    alias_rejection_source: str = NONE
-    modulator_alias_hz: float | None = None
-    modulator_alias_rejection_db: float | None = None
-    group_delay_dc_s: float | None = None
-    group_delay_band_edge_s: float | None = None
-    peak_dbfs: float | None = None
-    floor_dbfs: float | None = None
-    required_alias_rejection_db: float | None = None
-    stop_edge_hz: float | None = None
-    least_orders: dict[str, flt.OrderDesign | None] = field(default_factory=dict)
-    tones: tuple[ToneFold, ...] = ()
 
     @property
     def has_input_figures(self) -> bool:
         return self.kind == "input"
 
-    def figures(self) -> dict[str, FigureValue]:
-        out: dict[str, FigureValue] = {
-            SAMPLE_RATE: self.rate_hz,
-            NYQUIST: self.nyquist_hz,
-            BAND_LOW: self.band_low_hz,
-            BAND_HIGH: self.band_high_hz,
-            OSR: self.rate_over_nyquist,
-            FIRST_ALIAS: self.first_alias_hz,
-        }
-        if not self.has_input_figures:
-            return out
-        f = self.filter
-        out[FILTER] = None if f is None else {
-            "family": f.family, "order": f.order, "corner_hz": f.corner_hz, "ripple_db": f.ripple_db,
-            "stopband_db": f.stopband_db, "proposed": self.filter_proposed,
-        }
-        out[STAGES] = None if f is None else stage_list(f)
-        out[DROOP] = self.band_edge_droop_db
-        out[PASSBAND_LOSS] = self.passband_loss_db
-        out[PASSBAND_LOSS_AT] = self.passband_loss_at_hz
-        out[FILTER_ALIAS] = self.filter_rejection_at_first_alias_db
-        out[ALIAS_REJECTION] = self.alias_rejection_db
-        out[ALIAS_WORST] = _finite(self.alias_worst_hz)
-        out[ALIAS_ZONE] = None if self.alias_rejection_db is None else self.alias_worst_band
-        out[ALIAS_SOURCE] = self.alias_rejection_source
-        out[GD_DC] = self.group_delay_dc_s
-        out[GD_EDGE] = self.group_delay_band_edge_s
-        out[PEAK_DBFS] = self.peak_dbfs
-        out[FLOOR] = self.floor_dbfs
-        out[REQUIRED] = self.required_alias_rejection_db
-        out[STOP_EDGE] = self.stop_edge_hz
-        out[MIN_ORDER] = {
-            fam: None if d is None else {"order": d.order, "corner_hz": d.corner_hz}
-            for fam, d in self.least_orders.items()
-        } if self.least_orders else None
-        if self.decimation is not None:
-            dec = self.decimation
-            out[MOD_RATE] = dec.modulator_rate_hz
-            out[MOD_ALIAS] = self.modulator_alias_hz
-            out[MOD_REJECTION] = self.modulator_alias_rejection_db
-            out[DIG_PASS] = dec.passband_hz
-            out[DIG_STOP] = dec.stopband_hz
-            out[DIG_REJECTION] = dec.rejection_db
-        out[TONES] = [t.as_dict() for t in self.tones]
-        return out
-
     def best_least_order(self) -> flt.OrderDesign | None:
         """The family needing the fewest poles (ties go to the earlier family in FAMILIES)."""
         found = [d for d in self.least_orders.values() if d is not None]
         return min(found, key=lambda d: (d.order, flt.FAMILIES.index(d.family))) if found else None
-
-
-def _finite(value: float | None) -> float | None:
-    """A figure that may be infinite (the limit as f grows without bound) as JSON has it: null."""
-    return value if value is not None and math.isfinite(value) else None
 
 
 def stage_list(filt: flt.AnalogFilter) -> list[dict[str, float | None]]:
@@ -394,7 +386,7 @@ def _tone(i: int, channel: Channel, tone: Tone, rate: float, filt: flt.AnalogFil
         landed_at = dsp.alias_frequency(f, rate)
     zone = dsp.nyquist_zone(f, rate)
     return ToneFold(
-        index=i, frequency_hz=f, source=tone.source, line=tone.line, alias_hz=landed_at, zone=zone,
+        index=i, frequency_hz=f, source=tone.source, alias_hz=landed_at, zone=zone,
         inverted=dsp.is_inverted(f, rate), folded=not math.isclose(landed_at, f, rel_tol=1e-12),
         in_band=low <= landed_at <= high, level_dbfs=_dbfs(channel, tone.level, tone.level_dim),
         analog_attenuation_db=flt.attenuation_db(filt, f) if filt is not None else 0.0,
@@ -465,7 +457,7 @@ def analyze_sampling(channel: Channel, system: System) -> SamplingResult | None:
         alias_rejection_db=rejection.db if rejection is not None else None,
         alias_worst_hz=rejection.frequency_hz if rejection is not None else None,
         alias_worst_band=rejection.zone if rejection is not None else folding.FOLD,
-        alias_rejection_source=rejection.source if rejection is not None else NONE,
+        alias_rejection_source=rejection.source if rejection is not None else folding.NONE,
         modulator_alias_hz=f_mod - high if f_mod else None,
         modulator_alias_rejection_db=through.loss_db if through is not None else None,
         group_delay_dc_s=flt.group_delay_s(filt, 0.0) if filt is not None else None,
@@ -475,5 +467,96 @@ def analyze_sampling(channel: Channel, system: System) -> SamplingResult | None:
         required_alias_rejection_db=required,
         stop_edge_hz=stop_edge,
         least_orders=least,
+        modulator_rate_hz=f_mod,
+        digital_passband_hz=dec.passband_hz if dec is not None else None,
+        digital_stopband_hz=dec.stopband_hz if dec is not None else None,
+        digital_rejection_db=dec.rejection_db if dec is not None else None,
+        stages=stage_list(filt) if filt is not None else None,
         tones=tuple(_tone(i, channel, t, rate, filt, dec) for i, t in enumerate(channel.interference)),
     )
+
+
+# ------------------------------------------------------------------ what would fix it (rule messages)
+
+
+def rate_for_rejection(s: SamplingResult, need_db: float) -> float | None:
+    """Least rate at which the channel's own filter rejects everything from the first alias up by
+    ``need_db``: fs = f_high + f_A, f_A the lowest frequency from which the filter's loss stays at or
+    above ``need_db`` (:func:`generator.dsp.filters.frequency_for_attenuation`; fs - f_high is the
+    first alias, ADI MT-002).  None without a filter, or when its stopband never gets there."""
+    if s.filter is None:
+        return None
+    f_ok = flt.frequency_for_attenuation(s.filter, need_db)
+    return None if f_ok is None else f_ok + s.band_high_hz
+
+
+def rate_clearing_transition(s: SamplingResult) -> float | None:
+    """Least rate whose first alias fs - f_high reaches the decimation filter's stopband edge
+    b x fs (b the stopband as a fraction of the output rate): fs = f_high / (1 - b) [DER from ADI
+    MT-002]; None without a decimation filter or when b >= 1 (no rate does)."""
+    dec = s.decimation
+    if dec is None:
+        return None
+    stop_frac = dec.stopband_hz / s.rate_hz
+    return s.band_high_hz / (1 - stop_frac) if stop_frac < 1 else None
+
+
+def rate_for_decimation_passband(s: SamplingResult) -> tuple[float, float] | None:
+    """(passband as a fraction p of the output rate, least rate whose decimation passband p x fs
+    reaches the band top: fs = f_high / p); None without a decimation filter."""
+    dec = s.decimation
+    if dec is None:
+        return None
+    ratio = dec.passband_hz / s.rate_hz
+    return ratio, s.band_high_hz / ratio
+
+
+@dataclass(frozen=True)
+class CornerFix:
+    """A filter's corner moved to lose exactly the flatness at the band top."""
+
+    corner_hz: float
+    alias_rejection_db: float | None  # the channel's alias rejection with it; None when not judged
+
+
+def corner_for_flatness(s: SamplingResult) -> CornerFix | None:
+    """The corner at which the channel's filter (same family, order, ripple, stopband) loses
+    exactly the flatness at f_high (:func:`generator.dsp.filters.corner_for_droop`), with the alias
+    rejection (:func:`generator.dsp.folding.alias_rejection`) it then gives when the channel has a
+    required one; None without a filter, or for a ripple family whose ripple exceeds the flatness."""
+    filt = s.filter
+    if filt is None:
+        return None
+    corner = flt.corner_for_droop(filt, s.band_high_hz, s.flatness_db)
+    if corner is None:
+        return None
+    after = None
+    if s.required_alias_rejection_db is not None and s.alias_rejection_db is not None:
+        moved = flt.design(filt.family, filt.order, corner, filt.ripple_db, filt.stopband_db)
+        after = folding.alias_rejection(moved, s.rate_hz, s.band_high_hz, s.decimation,
+                                        None if s.decimation is not None else s.modulator_rate_hz).db
+    return CornerFix(corner, after)
+
+
+def rate_for_order(s: SamplingResult, family: str, order: int) -> float | None:
+    """Least rate at which ``order`` poles of ``family`` meet the channel's mask: the flatness at
+    f_high and the required rejection at fs - f_high; fs = f_high + the stopband edge of
+    :func:`generator.dsp.filters.stop_edge_for_order`.  None when no edge up to 1e9 f_high does."""
+    need = s.required_alias_rejection_db or 0.0
+    edge = flt.stop_edge_for_order(family, s.band_high_hz, order, s.flatness_db, max(need, s.flatness_db + 0.01))
+    return None if edge is None else edge + s.band_high_hz
+
+
+def order_for_tone(s: SamplingResult, tone: ToneFold, more_db: float) -> flt.AnalogFilter | None:
+    """The channel's filter at the least higher order (same family, corner, ripple and stopband) whose
+    loss at the tone's frequency, A(f) = -20 log10 |H(j 2 pi f)| (Williams & Taylor), is ``more_db``
+    above what the filter gives it now; None without a filter or when 20 poles do not."""
+    filt = s.filter
+    if filt is None:
+        return None
+    target = tone.analog_attenuation_db + more_db
+    for n in range(filt.order + 1, flt.MAX_ORDER + 1):
+        cand = flt.design(filt.family, n, filt.corner_hz, filt.ripple_db, filt.stopband_db)
+        if flt.attenuation_db(cand, tone.frequency_hz) >= target:
+            return cand
+    return None

@@ -48,6 +48,12 @@ from .memo import Memo
 
 FAMILIES = ("butterworth", "bessel", "chebyshev1", "chebyshev2", "elliptic")
 MAX_ORDER = 20
+IGNORED_RIPPLE_DB = 0.1
+IGNORED_STOPBAND_DB = 80.0
+"""The ripple a butterworth, bessel or chebyshev2 and the stopband a butterworth, bessel or
+chebyshev1 carry: their response ignores it, but it is part of the filter's identity (its memo
+keys, its JSON).  The schema's defaults for ``ripple`` and ``stopband_attenuation`` (dsp reads no
+schema: a test keeps the two equal), so a designed filter equals the one read back from a file."""
 # Attenuation is reported up to this ceiling: beyond it a number says nothing physical (and at
 # an exact transmission zero of chebyshev2/elliptic the loss is infinite).
 MAX_ATTENUATION_DB = 400.0
@@ -166,7 +172,8 @@ def _prototype(family: str, order: int, ripple_db: float, stopband_db: float) ->
 
 @lru_cache(maxsize=65536)
 def design(
-    family: str, order: int, corner_hz: float, ripple_db: float = 0.1, stopband_db: float = 80.0
+    family: str, order: int, corner_hz: float, ripple_db: float = IGNORED_RIPPLE_DB,
+    stopband_db: float = IGNORED_STOPBAND_DB,
 ) -> AnalogFilter:
     """Design an analog low-pass filter of ``family``, ``order``, with its corner at ``corner_hz``.
 
@@ -401,11 +408,11 @@ def _find_least_order_normalised(family: str, ratio: float, ap: float, as_: floa
     """Least order and corner for f_pass = 1, f_stop = ratio; None when above MAX_ORDER."""
     if family == "bessel":
         for n in range(1, MAX_ORDER + 1):
-            x = _solve_normalised_loss("bessel", n, 0.1, 80.0, ap)
+            x = _solve_normalised_loss("bessel", n, IGNORED_RIPPLE_DB, IGNORED_STOPBAND_DB, ap)
             if x is None:
                 continue
             corner = 1.0 / x  # passband loss exactly ap at f_pass
-            if _meets("bessel", n, corner, 0.1, 80.0, 1.0, ratio, ap, as_):
+            if _meets("bessel", n, corner, IGNORED_RIPPLE_DB, IGNORED_STOPBAND_DB, 1.0, ratio, ap, as_):
                 return n, corner
         return None
     try:
@@ -415,8 +422,8 @@ def _find_least_order_normalised(family: str, ratio: float, ap: float, as_: floa
     if not (math.isfinite(real) and math.isfinite(wn_f) and wn_f > 0) or real > MAX_ORDER + 1:
         return None
     n_raw = max(1, math.ceil(real))
-    ripple = ap if family in ("chebyshev1", "elliptic") else 0.1
-    stop = as_ if family in ("chebyshev2", "elliptic") else 80.0
+    ripple = ap if family in ("chebyshev1", "elliptic") else IGNORED_RIPPLE_DB
+    stop = as_ if family in ("chebyshev2", "elliptic") else IGNORED_STOPBAND_DB
 
     def corner_for(n: int) -> float:
         if family == "butterworth":  # passband met exactly: fc = fp / ep2^(1/2n) [WT]
@@ -467,8 +474,8 @@ def least_order(
     if found is None:
         return None
     n, corner = found
-    ripple = float(pass_loss_db) if family in ("chebyshev1", "elliptic") else 0.1
-    stop = float(stop_atten_db) if family in ("chebyshev2", "elliptic") else 80.0
+    ripple = float(pass_loss_db) if family in ("chebyshev1", "elliptic") else IGNORED_RIPPLE_DB
+    stop = float(stop_atten_db) if family in ("chebyshev2", "elliptic") else IGNORED_STOPBAND_DB
     return OrderDesign(family, n, corner * f_pass_hz, ripple, stop)
 
 
@@ -658,8 +665,8 @@ def design_for_flatness(family: str, order: int, f_pass_hz: float, pass_loss_db:
     chebyshev2 (stopband ``stop_atten_db``) solved on their monotonic passband.  None when the
     passband never reaches that loss."""
     ap = float(pass_loss_db)
-    ripple = ap if family in ("chebyshev1", "elliptic") else 0.1
-    stop = float(stop_atten_db) if family in ("chebyshev2", "elliptic") else 80.0
+    ripple = ap if family in ("chebyshev1", "elliptic") else IGNORED_RIPPLE_DB
+    stop = float(stop_atten_db) if family in ("chebyshev2", "elliptic") else IGNORED_STOPBAND_DB
     if family == "elliptic" and not stop > ripple:
         return None
     if family == "butterworth":

@@ -28,10 +28,6 @@ import numpy as np
 from . import filters as flt
 from .memo import Memo
 
-# 20 log10(2) and 10 log10(1.5): the exact constants behind "6.02 N + 1.76 dB" [MT-001].
-_DB_PER_BIT = 20.0 * math.log10(2.0)
-_SINE_FACTOR_DB = 10.0 * math.log10(1.5)
-
 
 def hold_gain(f_hz: float, rate_hz: float) -> float:
     """Linear magnitude of a zero-order hold at ``f_hz``: |sinc(f/fs)| [MT-017], [OS].

@@ -73,6 +73,17 @@ SystemCheck = Callable[[SystemAnalysis], Iterable[Finding]]
 ChannelCheck = Callable[[ChannelResult, System], Iterable[Hit]]
 
 
+TAGS = {
+    "sampling": "about an input's rate, folding and anti-aliasing filter",
+    "amplitude": "about a channel's range, bits and noise floor",
+    "rate-or-filter": "a change of sample rate or analog filter can clear it",
+    "gain-or-bits": "only the gain, bits, full scale or jitter can clear it: no rate or filter",
+    "shared": "about hardware channels share: converters, clocks, links, stores, timing groups",
+}
+"""The words a rule may be tagged with, and what each says about it.  ``propose`` and the tests
+select rules by tag (:func:`tagged`) rather than keeping lists of ids."""
+
+
 @dataclass(frozen=True)
 class Rule:
     id: str
@@ -80,6 +91,7 @@ class Rule:
     title: str
     explanation: str  # one paragraph, with the formula
     check: SystemCheck
+    tags: frozenset[str] = frozenset()
 
 
 RULES: dict[str, Rule] = {}
@@ -106,22 +118,27 @@ class ChannelRule:
 CHANNEL_RULES: dict[str, ChannelRule] = {}
 
 
-def system_rule(rule_id: str, severity: str, title: str, explanation: str) -> Callable[[SystemCheck], SystemCheck]:
-    """Register a rule that looks at the whole system."""
+def system_rule(rule_id: str, severity: str, title: str, explanation: str,
+                tags: tuple[str, ...] = ()) -> Callable[[SystemCheck], SystemCheck]:
+    """Register a rule that looks at the whole system; ``tags`` are words of :data:`TAGS`."""
 
     def register(fn: SystemCheck) -> SystemCheck:
         if rule_id in RULES:
             raise ValueError(f"rule {rule_id} registered twice")
         if severity not in SEVERITIES:
             raise ValueError(f"rule {rule_id}: unknown severity {severity}")
-        RULES[rule_id] = Rule(rule_id, severity, title, " ".join(explanation.split()), fn)
+        unknown = sorted(set(tags) - set(TAGS))
+        if unknown:
+            raise ValueError(f"rule {rule_id}: unknown tags {', '.join(unknown)}")
+        RULES[rule_id] = Rule(rule_id, severity, title, " ".join(explanation.split()), fn, frozenset(tags))
         return fn
 
     return register
 
 
 def channel_rule(
-    rule_id: str, severity: str, title: str, explanation: str, kinds: tuple[str, ...] = ("input",)
+    rule_id: str, severity: str, title: str, explanation: str, kinds: tuple[str, ...] = ("input",),
+    tags: tuple[str, ...] = (),
 ) -> Callable[[ChannelCheck], ChannelCheck]:
     """Register a rule checked channel by channel, for channels of the given kinds."""
 
@@ -133,7 +150,7 @@ def channel_rule(
             for result in analysis.channels:
                 yield from rule.findings(result, system)
 
-        system_rule(rule_id, severity, title, explanation)(check)
+        system_rule(rule_id, severity, title, explanation, tags)(check)
         CHANNEL_RULES[rule_id] = rule
         return fn
 
@@ -195,11 +212,6 @@ def match_waivers(findings: Iterable[Finding], analysis: SystemAnalysis) -> tupl
     return out, used
 
 
-def apply_waivers(findings: Iterable[Finding], analysis: SystemAnalysis) -> list[Finding]:
-    """Mark findings covered by a channel's ``[[waiver]]``: still listed, no longer failing."""
-    return match_waivers(findings, analysis)[0]
-
-
 def channel_rule_findings(result: ChannelResult, system: System) -> tuple[Finding, ...]:
     """Every channel rule's findings on one channel, before waivers, in registration order."""
     _load_rule_modules()
@@ -251,9 +263,12 @@ def all_rules() -> list[Rule]:
     return list(RULES.values())
 
 
-def channel_status(findings: Iterable[Finding], channel_id: str) -> str:
-    """ok | warning | error: the worst unwaived finding on the channel (info does not count)."""
-    return worst_status(f for f in findings if channel_id in f.channels)
+def tagged(*tags: str) -> tuple[str, ...]:
+    """Ids of the rules carrying every one of ``tags``, in registration order."""
+    unknown = sorted(set(tags) - set(TAGS))
+    if unknown:
+        raise ValueError(f"unknown tags {', '.join(unknown)}")
+    return tuple(r.id for r in all_rules() if r.tags.issuperset(tags))
 
 
 def by_channel(findings: Iterable[Finding]) -> dict[str, list[Finding]]:

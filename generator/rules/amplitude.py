@@ -2,11 +2,19 @@
 
 from __future__ import annotations
 
-import math
 from collections.abc import Iterator
 
 from ..analysis import ChannelResult
-from ..analysis.amplitude import AmplitudeResult
+from ..analysis.amplitude import (
+    TARGET_USAGE,
+    AmplitudeResult,
+    gain_for_usage,
+    jitter_for_snr,
+    over_full_scale_db,
+    resolution_fix,
+    sensor_noise_for_snr,
+    snr_needed_from,
+)
 from ..dsp import quantization as q
 from ..model import Channel, System
 from ..quantities import Span, Unit, format_in_unit, format_percent, format_quantity
@@ -14,9 +22,6 @@ from . import Hit, beyond, channel_rule, short_of
 
 UNDERUSED_BELOW = 0.1
 """Range usage under which a channel is flagged: a tenth of full scale (common practice)."""
-
-TARGET_USAGE = 0.9
-"""Share of full scale a suggested gain aims at, leaving about 1 dB of headroom (common practice)."""
 
 
 def _span(span: Span) -> str:
@@ -47,9 +52,8 @@ def _gain_fix(ch: Channel, a: AmplitudeResult) -> str:
     """'a gain of about 9.47 V/V (19.5 dB)': the gain that puts the peak at about 90 % of full scale.
 
     On an input the converter sees peak x gain, on an output it must produce peak / gain."""
-    usage = a.range_usage or 0.0
     gain = ch.conversion.gain
-    wanted = gain * TARGET_USAGE / usage if ch.kind == "input" else gain * usage / TARGET_USAGE
+    wanted = gain_for_usage(ch, a)
     where = "ahead of the converter" if ch.kind == "input" else "after the converter"
     if gain == 1.0:
         return f"a gain of about {_gain(wanted)} {where}"
@@ -72,6 +76,7 @@ def _at_converter(ch: Channel, a: AmplitudeResult) -> str:
     about its centre). Beyond it the converter clips and every figure downstream is wrong. Change
     the gain, choose a less sensitive sensor or a wider full scale.""",
     kinds=("input", "output"),
+    tags=("amplitude", "gain-or-bits"),
 )
 def clipping(result: ChannelResult, system: System) -> Iterator[Hit]:
     a = result.amplitude
@@ -81,7 +86,7 @@ def clipping(result: ChannelResult, system: System) -> Iterator[Hit]:
         return
     if not beyond(a.peak_volts, a.full_scale_amplitude_volts):
         return
-    over = q.amplitude_db(a.peak_volts / a.full_scale_amplitude_volts)
+    over = over_full_scale_db(a) or 0.0
     other = "a less sensitive sensor" if ch.kind == "input" else "a converter with a wider range"
     yield Hit(
         f"{_peak_text(ch)} {_at_converter(ch, a)}, {_db(over)} beyond the {_span(conv.full_scale)} full scale "
@@ -100,6 +105,7 @@ def clipping(result: ChannelResult, system: System) -> Iterator[Hit]:
     volts (quantization, converter noise) grows by the same factor relative to the signal. Change
     the gain so the peak uses about 90 % of full scale, or choose a smaller full scale.""",
     kinds=("input", "output"),
+    tags=("amplitude", "gain-or-bits"),
 )
 def range_underused(result: ChannelResult, system: System) -> Iterator[Hit]:
     a = result.amplitude
@@ -126,6 +132,7 @@ def range_underused(result: ChannelResult, system: System) -> Iterator[Hit]:
     Use more bits (N >= log2(FSR / (resolution x sensitivity x gain))), or raise the gain if the
     peak still fits the full scale.""",
     kinds=("input", "output"),
+    tags=("amplitude", "gain-or-bits"),
 )
 def resolution(result: ChannelResult, system: System) -> Iterator[Hit]:
     a = result.amplitude
@@ -134,10 +141,11 @@ def resolution(result: ChannelResult, system: System) -> Iterator[Hit]:
     lsb_si = None if a is None else a.lsb_si
     if a is None or lsb_si is None or wanted is None or wanted <= 0 or not beyond(lsb_si, wanted):
         return
-    per_unit = a.volts_per_unit or 1.0
-    bits = q.bits_for_lsb(a.full_scale_range_volts, wanted * per_unit)
-    factor = lsb_si / wanted
-    fix = f"use at least {bits} bits"
+    needed = resolution_fix(a, wanted)
+    if needed is None:
+        return
+    factor = needed.gain_factor
+    fix = f"use at least {needed.bits} bits"
     usage = a.range_usage
     if usage is not None and usage * factor <= 1.0:
         fix += (
@@ -154,13 +162,6 @@ def resolution(result: ChannelResult, system: System) -> Iterator[Hit]:
     )
 
 
-def _allowed_for(a: AmplitudeResult, name: str, required_db: float) -> float | None:
-    """The SNR the named contribution needs so that the power sum meets ``required_db``, if reachable."""
-    others = [-(c.db or 0.0) for c in a.budget if c.name not in (name, "total") and c.db is not None]
-    room = math.pow(10.0, -required_db / 10.0) - math.fsum(math.pow(10.0, -s / 10.0) for s in others)
-    return None if room <= 0 else -q.power_db(room)
-
-
 @channel_rule(
     "noise-floor",
     "error",
@@ -171,6 +172,7 @@ def _allowed_for(a: AmplitudeResult, name: str, required_db: float) -> float | N
     jitter, referred through the gain after it. The message names the largest contribution, the
     one to fix first.""",
     kinds=("input", "output"),
+    tags=("amplitude", "rate-or-filter"),
 )
 def noise_floor(result: ChannelResult, system: System) -> Iterator[Hit]:
     a = result.amplitude
@@ -181,7 +183,7 @@ def noise_floor(result: ChannelResult, system: System) -> Iterator[Hit]:
     top = a.dominant()
     if top is None or top.db is None:
         return
-    need = _allowed_for(a, top.name, required)
+    need = snr_needed_from(a, top.name, required)
     band = ch.signal.band
     rate = ch.conversion.rate
     can_filter = (ch.kind == "input" and not ch.signal.filtered_to_band and band is not None and rate is not None
@@ -194,21 +196,20 @@ def noise_floor(result: ChannelResult, system: System) -> Iterator[Hit]:
             fix += ", or filter the data to the band (filtered_to_band) to earn processing gain"
     elif top.name == "sampling jitter":
         fix = f"it needs {_db(need)}"
-        if band is not None and band[1] > 0:
-            fix += f": lower the jitter to at most {format_quantity(q.max_jitter(need, band[1]), 's')} rms"
+        most = jitter_for_snr(ch, need)
+        if most is not None:
+            fix += f": lower the jitter to at most {format_quantity(most, 's')} rms"
     else:
         noise = ch.sensor.noise
-        peak = ch.signal.peak
         fix = f"it needs {_db(need)}: choose a quieter sensor"
-        if peak is not None and noise is not None:
-            allowed_si = q.sine_rms(peak) / q.amplitude_ratio(need)
-            if noise.density and a.noise_bandwidth_hz:
+        quieter = sensor_noise_for_snr(ch, a, need)
+        if quieter is not None:
+            if quieter.density is not None and a.noise_bandwidth_hz:
                 per_root_hz = Unit(f"{ch.unit.symbol}/√Hz", ch.unit.factor, ch.unit.dim)
-                allowed_density = allowed_si / math.sqrt(a.noise_bandwidth_hz)
-                fix += (f" (at most {format_in_unit(allowed_density, per_root_hz)} over "
+                fix += (f" (at most {format_in_unit(quieter.density, per_root_hz)} over "
                         f"{format_quantity(a.noise_bandwidth_hz, 'Hz')})")
             else:
-                fix += f" (at most {format_in_unit(allowed_si, ch.unit)} rms in the band)"
+                fix += f" (at most {format_in_unit(quieter.rms, ch.unit)} rms in the band)"
         if can_filter and noise is not None and noise.density:
             fix += ", or filter the data to the band (filtered_to_band) to narrow the noise bandwidth"
     yield Hit(
@@ -228,6 +229,7 @@ def noise_floor(result: ChannelResult, system: System) -> Iterator[Hit]:
     output's update clock jitters the same way. The jitter is the channel's own, else the
     converter's aperture jitter and its clock's added as a root sum of squares (ADI MT-007).""",
     kinds=("input", "output"),
+    tags=("amplitude", "gain-or-bits"),
 )
 def jitter_limit(result: ChannelResult, system: System) -> Iterator[Hit]:
     a = result.amplitude
@@ -242,7 +244,7 @@ def jitter_limit(result: ChannelResult, system: System) -> Iterator[Hit]:
     yield Hit(
         f"{format_quantity(jitter, 's')} rms of sampling jitter limits a sine at "
         f"{format_quantity(band[1], 'Hz')} to {_db(a.jitter_snr_db)}, below the required {_db(required)}; "
-        f"lower the jitter to at most {format_quantity(q.max_jitter(required, band[1]), 's')} rms "
+        f"lower the jitter to at most {format_quantity(jitter_for_snr(ch, required) or 0.0, 's')} rms "
         "(a cleaner clock or converter), or lower the band top",
         _path(ch, "conversion.jitter", "conversion.converter", "signal.snr"),
     )
@@ -255,6 +257,7 @@ def jitter_limit(result: ChannelResult, system: System) -> Iterator[Hit]:
     """A channel inherits `bits` and `full_scale` from its converter. Writing a different value in
     the channel file makes its figures disagree with the hardware it names. Remove the key to
     inherit the converter's value, or correct the converter in system.toml.""",
+    tags=("amplitude", "gain-or-bits"),
 )
 def bits_mismatch(result: ChannelResult, system: System) -> Iterator[Hit]:
     ch = result.channel

@@ -61,6 +61,7 @@ def _rate_line(ch: Channel) -> SourceRef:
     must not exceed its max_rate (load = sum fs_i / max_rate). A simultaneous converter has one
     sampler per input: each channel's rate must not exceed max_rate. Neither may carry more channels
     than it has inputs. Lower rates, move channels to another converter, or choose a faster one.""",
+    tags=("shared",),
 )
 def converter_throughput(analysis: SystemAnalysis) -> Iterator[Finding]:
     system = analysis.spec.system
@@ -93,6 +94,7 @@ def converter_throughput(analysis: SystemAnalysis) -> Iterator[Finding]:
     runs at the same rate. Channels asking for different rates on one such converter contradict each
     other: give them one rate (decimate in software where a channel needs less), or split them over
     converters.""",
+    tags=("shared",),
 )
 def shared_rate(analysis: SystemAnalysis) -> Iterator[Finding]:
     for load in analysis.budgets.converters:
@@ -134,6 +136,7 @@ def _clock_message(c: ClockCheck) -> str:
     derives its output rate as f_mod / OSR, OSR one of its oversampling_ratios, and its modulator
     clock is itself f_clock / N (common practice). A rate that is not reachable will in fact run at
     the nearest achievable rate; the message names it and its error in ppm = (f_near - fs) / fs x 1e6.""",
+    tags=("shared",),
 )
 def clock_divider(analysis: SystemAnalysis) -> Iterator[Finding]:
     system = analysis.spec.system
@@ -159,6 +162,7 @@ def clock_divider(analysis: SystemAnalysis) -> Iterator[Finding]:
     Above the raw capacity the data cannot flow (error); above capacity x (1 - headroom) it eats
     the margin the link keeps free (warning). Lower rates or containers, or move channels to
     another link.""",
+    tags=("shared",),
 )
 def link_capacity(analysis: SystemAnalysis) -> Iterator[Finding]:
     system = analysis.spec.system
@@ -185,6 +189,7 @@ def link_capacity(analysis: SystemAnalysis) -> Iterator[Finding]:
     record_duration: bytes = sum(fs_i C_i) x T / 8. It must hold them; the time it can actually
     hold is T_max = 8 x capacity / sum(fs_i C_i). Shorten the recording, lower rates, or add
     capacity.""",
+    tags=("shared",),
 )
 def storage_capacity(analysis: SystemAnalysis) -> Iterator[Finding]:
     system = analysis.spec.system
@@ -212,6 +217,7 @@ def storage_capacity(analysis: SystemAnalysis) -> Iterator[Finding]:
     so a later slot offsets a filter's lag). The spread over the members must not exceed the group's phase limit,
     nor, as time (spread / 2 pi f), its skew limit. Give the members identical filters, put them on
     a simultaneous converter, or relax the limit.""",
+    tags=("shared",),
 )
 def group_skew(analysis: SystemAnalysis) -> Iterator[Finding]:
     system = analysis.spec.system

@@ -5,7 +5,7 @@ from __future__ import annotations
 from collections.abc import Iterator
 
 from ..analysis import ChannelResult
-from ..analysis.image import SQUARE_TOLERANCE
+from ..analysis.image import SQUARE_TOLERANCE, magnification_for_detail, pitch_for_detail
 from ..model import System
 from ..quantities import format_percent, format_quantity
 from . import Hit, beyond, channel_rule
@@ -26,13 +26,13 @@ def spatial_nyquist(result: ChannelResult, system: System) -> Iterator[Hit]:
     detail = result.channel.signal.detail_cycles_per_m
     if im is None or detail is None or not beyond(detail, im.spatial_nyquist_cycles_per_m):
         return
-    pitch_max = 1.0 / (2.0 * detail)
+    pitch_max = pitch_for_detail(detail)
     yield Hit(
         f"required detail {format_quantity(detail, 'cycles/m')} is above the spatial Nyquist frequency "
         f"{format_quantity(im.spatial_nyquist_cycles_per_m, 'cycles/m')} of the "
         f"{format_quantity(im.pixel_pitch_m, 'm')} pitch and will alias as moire: use a pitch of at most "
         f"{format_quantity(pitch_max, 'm')}, or optics magnifying at least "
-        f"{detail / im.spatial_nyquist_cycles_per_m:.3g}x onto the sensor",
+        f"{magnification_for_detail(im, detail):.3g}x onto the sensor",
         "signal.detail",
     )
 

@@ -3,12 +3,10 @@
 from __future__ import annotations
 
 import math
-from collections.abc import Callable, Iterator
-from dataclasses import replace
+from collections.abc import Iterator
 
 from ..analysis import ChannelResult
-from ..analysis.output import filter_loss_db, image_rejection_at
-from ..dsp import reconstruction as rec
+from ..analysis.output import corner_for_image_rejection, droop_parts, gain_for_limit, rate_for_image_rejection
 from ..model import Channel, System
 from ..quantities import format_in_unit, format_quantity
 from . import Hit, beyond, channel_rule, short_of
@@ -17,19 +15,6 @@ from . import Hit, beyond, channel_rule, short_of
 def _path(ch: Channel, *paths: str) -> str:
     """The first of ``paths`` written in the channel's file (findings point at that line)."""
     return next((p for p in paths if p in ch.lines), paths[-1])
-
-
-def _root(fn: Callable[[float], float], lo: float, hi: float) -> float | None:
-    """Where ``fn`` crosses zero between ``lo`` and ``hi``; None without a sign change."""
-    try:
-        a, b = fn(lo), fn(hi)
-        if not (math.isfinite(a) and math.isfinite(b)) or a * b > 0:
-            return None
-        from scipy.optimize import brentq  # imported when first needed
-
-        return float(brentq(fn, lo, hi, rtol=1e-10))
-    except (ValueError, ZeroDivisionError, OverflowError):
-        return None
 
 
 def _db(value: float) -> str:
@@ -50,14 +35,14 @@ def _hz(value: float) -> str:
     (`sinc_compensation`) removes the hold's part. Fix: raise the rate, pre-correct the stream,
     or raise the filter corner.""",
     kinds=("output",),
+    tags=("rate-or-filter",),
 )
 def zoh_droop(result: ChannelResult, system: System) -> Iterator[Hit]:
     o = result.output
     if o is None or not beyond(o.passband_error_db, o.flatness_db):
         return
-    at = o.passband_error_at_hz
-    hold_loss = -(rec.hold_droop_db(at, o.rate_hz)) if o.hold == "zero-order" and not o.sinc_compensation else 0.0
-    filt_loss = filter_loss_db(result.channel.filter, at) or 0.0
+    loss = droop_parts(result.channel, o)
+    at, hold_loss, filt_loss = loss.at_hz, loss.hold_db, loss.filter_db
     parts = [f"the hold loses {_db(hold_loss)}" if o.zoh_droop_db is not None else "no hold"]
     if o.filter_droop_db is not None:
         parts.append(f"the filter {_db(filt_loss)}")
@@ -65,10 +50,8 @@ def zoh_droop(result: ChannelResult, system: System) -> Iterator[Hit]:
              else f"at {_hz(at)}, inside the band")
     head = (f"{place} the output loses {_db(o.passband_error_db)} "
             f"({'; '.join(parts)}), more than the flatness {_db(o.flatness_db)}")
-    budget = o.flatness_db - filt_loss
-    if hold_loss > 0.0 and budget > 0.0:
-        rate = rec.min_rate_for_droop(at, budget)
-        fix = (f"raise the rate to at least {_hz(rate)}, or set sinc_compensation = true "
+    if loss.rate_hz is not None:
+        fix = (f"raise the rate to at least {_hz(loss.rate_hz)}, or set sinc_compensation = true "
                "to pre-correct the stream for the hold")
     elif hold_loss > 0.0:
         fix = ("the filter alone uses the whole flatness: raise its corner, then raise the rate or set "
@@ -90,6 +73,7 @@ def zoh_droop(result: ChannelResult, system: System) -> Iterator[Hit]:
     6.02 N + 1.76 dB, ADI MT-001). Fix: raise the rate (the images move up), or steepen the
     filter.""",
     kinds=("output",),
+    tags=("rate-or-filter",),
 )
 def image_rejection(result: ChannelResult, system: System) -> Iterator[Hit]:
     o = result.output
@@ -108,15 +92,12 @@ def image_rejection(result: ChannelResult, system: System) -> Iterator[Hit]:
             f"{_hz(o.first_image_hz)}, gets {_db(o.hold_image_attenuation_db)} from the hold and "
             f"{_db(o.filter_image_attenuation_db or 0.0)} from the filter); {_db(required)} required")
     fixes: list[str] = []
-    rate = _root(lambda fs: image_rejection_at(ch, fs) - required, o.rate_hz, o.rate_hz * 1e4)
+    rate = rate_for_image_rejection(ch, o, required)
     if rate is not None:
         fixes.append(f"raise the rate to at least {_hz(rate)}")
     if filt is not None and filt.order is not None and filt.corner is not None:
-        def excess(corner: float) -> float:
-            return image_rejection_at(replace(ch, filter=replace(filt, corner=corner)), o.rate_hz) - required
-
-        corner = _root(excess, o.band_high_hz, filt.corner)
-        if corner is not None and corner > o.band_high_hz:
+        corner = corner_for_image_rejection(ch, o, required)
+        if corner is not None:
             fixes.append(f"lower the filter's corner to at most {_hz(corner)} (check the band-top droop), "
                          "or raise the order")
         else:
@@ -137,6 +118,7 @@ def image_rejection(result: ChannelResult, system: System) -> Iterator[Hit]:
     overdrive the actuator. Checked where the channel's unit is a voltage. Fix: lower the gain,
     or narrow the converter's range.""",
     kinds=("output",),
+    tags=("gain-or-bits",),
 )
 def output_overrange(result: ChannelResult, system: System) -> Iterator[Hit]:
     o = result.output
@@ -147,7 +129,9 @@ def output_overrange(result: ChannelResult, system: System) -> Iterator[Hit]:
         return
     if not beyond(o.output_peak_volts, limit):
         return
-    gain_max = limit / fs.peak
+    gain_max = gain_for_limit(ch)
+    if gain_max is None:
+        return
     yield Hit(
         f"full scale {format_quantity(fs.peak, 'V')} peak x gain {ch.conversion.gain:.4g} gives "
         f"{format_quantity(o.output_peak_volts, 'V')} peak, above the limit {format_in_unit(limit, ch.unit)}: "

@@ -18,7 +18,6 @@ from . import Hit, beyond, channel_rule
 
 ELV_RMS_V = 30.0  # common practice
 ELV_PEAK_V = 42.4  # common practice (30 V rms x sqrt 2)
-ELV_DC_V = 60.0  # common practice
 
 
 def _reasons(result: ChannelResult) -> tuple[list[str], str]:

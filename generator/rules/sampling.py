@@ -6,10 +6,18 @@ import math
 from collections.abc import Iterator
 
 from ..analysis import ChannelResult
-from ..analysis.sampling import DIGITAL, SamplingResult
-from ..dsp import filters as flt
+from ..analysis.sampling import (
+    SamplingResult,
+    corner_for_flatness,
+    order_for_tone,
+    rate_clearing_transition,
+    rate_for_decimation_passband,
+    rate_for_order,
+    rate_for_rejection,
+)
 from ..dsp import folding
 from ..dsp.filters import AnalogFilter, OrderDesign
+from ..dsp.sampling import alias_frequency
 from ..model import System
 from ..quantities import format_quantity
 from . import Hit, beyond, channel_rule, short_of
@@ -23,6 +31,7 @@ from . import Hit, beyond, channel_rule, short_of
     Shannon 1949). Below that, the top of the band folds onto itself and no filter can
     separate it. Raise the rate, or narrow the band.""",
     kinds=("input", "output"),
+    tags=("sampling", "rate-or-filter"),
 )
 def below_nyquist(result: ChannelResult, system: System) -> Iterator[Hit]:
     s = result.sampling
@@ -99,6 +108,7 @@ def _skip_alias_checks(s: SamplingResult | None) -> bool:
     f_mod (there content folds through the modulator itself, and in its own transition band), where
     only the analog filter counts; no analog filter counts as 0 dB. A decimation filter
     system.toml does not describe earns no credit; an unknown modulator rate is reported.""",
+    tags=("sampling", "rate-or-filter"),
 )
 def alias_rejection(result: ChannelResult, system: System) -> Iterator[Hit]:
     s = result.sampling
@@ -125,7 +135,7 @@ def alias_rejection(result: ChannelResult, system: System) -> Iterator[Hit]:
                    "stopband_rejection in system.toml), so it is given no credit" if s.delta_sigma
                    and s.decimation is None else "")
     where = _worst_place(s)
-    if s.alias_rejection_source == DIGITAL and s.decimation is not None:
+    if s.alias_rejection_source == folding.DIGITAL and s.decimation is not None:
         dec = s.decimation
         analog = have - dec.rejection_db
         verb = "make the analog filter give" if filt is not None else "add an analog filter giving"
@@ -154,9 +164,9 @@ def alias_rejection(result: ChannelResult, system: System) -> Iterator[Hit]:
     advice = _order_advice(s, filt.family)
     fixes = []
     if s.alias_worst_band == folding.FOLD and not s.delta_sigma:
-        f_ok = flt.frequency_for_attenuation(filt, need)
-        if f_ok is not None:
-            fixes.append(f"raise the rate to at least {_hz(f_ok + s.band_high_hz)}")
+        rate = rate_for_rejection(s, need)
+        if rate is not None:
+            fixes.append(f"raise the rate to at least {_hz(rate)}")
     if advice:
         fixes.append(advice)
     fix = ", or ".join(fixes) if fixes else "lower out_of_band or raise the rate"
@@ -175,15 +185,15 @@ def _worst_place(s: SamplingResult) -> str:
     if s.alias_worst_band == folding.MODULATOR and s.decimation is not None and s.decimation.modulator_rate_hz:
         f_mod = s.decimation.modulator_rate_hz
         return (f"content at {_hz(f)}, near the modulator rate {_hz(f_mod)}, folds through the modulator onto "
-                f"{_hz(abs(math.remainder(f, f_mod)))}")
-    return f"content at {_hz(f)} folds onto {_hz(abs(math.remainder(f, s.rate_hz)))}"
+                f"{_hz(alias_frequency(f, f_mod))}")
+    return f"content at {_hz(f)} folds onto {_hz(alias_frequency(f, s.rate_hz))}"
 
 
 def _modulator_place(s: SamplingResult) -> str:
     """Where content folds through the modulator, in words."""
     if s.alias_worst_band == folding.MODULATOR:
         return _worst_place(s)
-    f_mod = _modulator(s)
+    f_mod = s.modulator_rate_hz
     if f_mod is None:
         return "content near the modulator rate folds through the modulator onto the band"
     return (f"content at {_hz(f_mod - s.band_high_hz)}, near the modulator rate {_hz(f_mod)}, folds through the "
@@ -201,12 +211,11 @@ def _transition_hit(s: SamplingResult, need: float) -> Hit | None:
     if not short_of(got, need):
         return None
     f = s.alias_worst_hz if s.alias_worst_band == folding.TRANSITION and s.alias_worst_hz else s.first_alias_hz
-    stop_frac = dec.stopband_hz / s.rate_hz
-    fix = (f"raise the rate to at least {_hz(s.band_high_hz / (1 - stop_frac))}" if stop_frac < 1
-           else "raise the rate")
+    rate = rate_clearing_transition(s)
+    fix = f"raise the rate to at least {_hz(rate)}" if rate is not None else "raise the rate"
     analog = f"{_describe(s.filter)} gives {_db(got)}" if s.filter is not None else "no analog filter"
     return Hit(
-        f"content at {_hz(f)} folds onto {_hz(abs(math.remainder(f, s.rate_hz)))}, inside the decimation filter's "
+        f"content at {_hz(f)} folds onto {_hz(alias_frequency(f, s.rate_hz))}, inside the decimation filter's "
         f"transition band (below its stopband edge {_hz(dec.stopband_hz)}), where it rejects nothing; "
         f"{_db(need)} needed there ({analog}): {fix}, or lower the band top",
         "conversion.rate",
@@ -246,18 +255,20 @@ def _modulator_unknown(s: SamplingResult, need: float, conv_id: str) -> Iterator
     elliptic loses up to its ripple anywhere inside its passband (an even order at DC). On a
     delta-sigma converter the band must also sit inside the decimation filter's passband,
     f_high <= passband x fs.""",
+    tags=("sampling", "rate-or-filter"),
 )
 def band_edge_droop(result: ChannelResult, system: System) -> Iterator[Hit]:
     s = result.sampling
     if s is None or not s.has_input_figures:
         return
     dec = s.decimation
-    if dec is not None and beyond(s.band_high_hz, dec.passband_hz):
-        ratio = dec.passband_hz / s.rate_hz
+    passband_fix = rate_for_decimation_passband(s)
+    if dec is not None and passband_fix is not None and beyond(s.band_high_hz, dec.passband_hz):
+        ratio, rate = passband_fix
         yield Hit(
             f"band top {_hz(s.band_high_hz)} lies above the decimation filter's passband edge "
             f"{_hz(dec.passband_hz)} ({ratio:g} x {_hz(s.rate_hz)}), where its response is not specified: "
-            f"raise the rate to at least {_hz(s.band_high_hz / ratio)}, or lower the band top to "
+            f"raise the rate to at least {_hz(rate)}, or lower the band top to "
             f"{_hz(dec.passband_hz)}",
             "conversion.rate",
         )
@@ -265,16 +276,13 @@ def band_edge_droop(result: ChannelResult, system: System) -> Iterator[Hit]:
     loss = s.passband_loss_db
     if filt is None or loss is None or not beyond(loss, s.flatness_db):
         return
-    corner = flt.corner_for_droop(filt, s.band_high_hz, s.flatness_db)
-    if corner is None:
+    moved = corner_for_flatness(s)
+    if moved is None:
         fix = f"lower the ripple to {_db(s.flatness_db)} or less"
     else:
-        moved = flt.design(filt.family, filt.order, corner, filt.ripple_db, filt.stopband_db)
-        fix = f"raise the corner to {_hz(corner)}"
-        if s.required_alias_rejection_db is not None and s.alias_rejection_db is not None:
-            after = folding.alias_rejection(moved, s.rate_hz, s.band_high_hz, s.decimation,
-                                            None if s.decimation is not None else _modulator(s))
-            fix += (f" (it then rejects aliases by {_db(after.db)}, "
+        fix = f"raise the corner to {_hz(moved.corner_hz)}"
+        if s.required_alias_rejection_db is not None and moved.alias_rejection_db is not None:
+            fix += (f" (it then rejects aliases by {_db(moved.alias_rejection_db)}, "
                     f"{_db(s.required_alias_rejection_db)} needed)")
     advice = _order_advice(s, filt.family)
     at = s.passband_loss_at_hz if s.passband_loss_at_hz is not None else s.band_high_hz
@@ -287,11 +295,6 @@ def band_edge_droop(result: ChannelResult, system: System) -> Iterator[Hit]:
     )
 
 
-def _modulator(s: SamplingResult) -> float | None:
-    """The modulator rate of a delta-sigma input whose decimation filter is not described."""
-    return s.modulator_alias_hz + s.band_high_hz if s.modulator_alias_hz is not None else None
-
-
 @channel_rule(
     "filter-missing",
     "error",
@@ -300,6 +303,7 @@ def _modulator(s: SamplingResult) -> float | None:
     fs - f_high onto the band; only an analog filter ahead of it can remove that content. An
     input on such a converter needs a [filter] (family, order and corner; a family alone lets
     specfold size it). A delta-sigma converter's decimation filter does this job near fs.""",
+    tags=("sampling", "rate-or-filter"),
 )
 def filter_missing(result: ChannelResult, system: System) -> Iterator[Hit]:
     s = result.sampling
@@ -334,6 +338,7 @@ def filter_missing(result: ChannelResult, system: System) -> Iterator[Hit]:
     with r = f_stop / f_high, ep2 = 10^(flatness/10) - 1, es2 = 10^(A/10) - 1; Williams &
     Taylor) and by search for bessel. When every family needs more than 20 poles the rate
     leaves the filter too little room.""",
+    tags=("sampling", "rate-or-filter"),
 )
 def filter_impractical(result: ChannelResult, system: System) -> Iterator[Hit]:
     s = result.sampling
@@ -343,9 +348,9 @@ def filter_impractical(result: ChannelResult, system: System) -> Iterator[Hit]:
     edge = s.stop_edge_hz or s.first_alias_hz
     ratio = edge / s.band_high_hz
     fix = "raise the rate, relax the flatness, or lower out_of_band"
-    stop8 = flt.stop_edge_for_order("elliptic", s.band_high_hz, 8, s.flatness_db, max(need, s.flatness_db + 0.01))
-    if stop8 is not None and s.decimation is None:
-        fix = f"raise the rate to at least {_hz(stop8 + s.band_high_hz)} (then an 8th-order elliptic fits)"
+    rate8 = rate_for_order(s, "elliptic", 8) if s.decimation is None else None
+    if rate8 is not None:
+        fix = f"raise the rate to at least {_hz(rate8)} (then an 8th-order elliptic fits)"
     yield Hit(
         f"no filter family of 20 poles or fewer gives {_db(need)} at {_hz(edge)} while losing at most "
         f"{s.flatness_db:.2f} dB at {_hz(s.band_high_hz)} (transition ratio {ratio:.4g}): {fix}",
@@ -363,6 +368,7 @@ def filter_impractical(result: ChannelResult, system: System) -> Iterator[Hit]:
     analog filter at f (and by the decimation filter's stopband rejection where it applies) and
     lands at level - attenuation dBFS; the finding is raised when it lands inside the band
     above the channel's floor (see alias-rejection).""",
+    tags=("sampling", "rate-or-filter"),
 )
 def interference_folds(result: ChannelResult, system: System) -> Iterator[Hit]:
     s = result.sampling
@@ -381,14 +387,9 @@ def interference_folds(result: ChannelResult, system: System) -> Iterator[Hit]:
             by.append(f"{_db(tone.digital_attenuation_db)} from the decimation filter")
         got = " and ".join(by) if by else "no attenuation"
         fixes = [f"add {_db(short)} of rejection at {_hz(tone.frequency_hz)}"]
-        filt = s.filter
-        if filt is not None:
-            target = tone.analog_attenuation_db + short
-            for n in range(filt.order + 1, flt.MAX_ORDER + 1):
-                cand = flt.design(filt.family, n, filt.corner_hz, filt.ripple_db, filt.stopband_db)
-                if flt.attenuation_db(cand, tone.frequency_hz) >= target:
-                    fixes[0] += f" (a {_describe(cand)} gives it)"
-                    break
+        steeper = order_for_tone(s, tone, short)
+        if steeper is not None:
+            fixes[0] += f" (a {_describe(steeper)} gives it)"
         fixes.append("remove it at its source")
         yield Hit(
             f"the {_hz(tone.frequency_hz)} tone{what} at {_dbfs(tone.level_dbfs or 0.0)} folds from zone "
