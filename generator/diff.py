@@ -27,6 +27,8 @@ from .report import finding_dict
 from .rules import SEVERITY_RANK, Finding, run_rules
 
 DIFF_FORMAT = 1
+GIT_SYMLINK_MODE = "120000"
+"""The mode git records for a symbolic link (git ls-tree)."""
 
 # budget values compared per item (the rest of each budget is identity or limits)
 BUDGET_KEYS: Mapping[str, tuple[str, ...]] = {
@@ -82,21 +84,26 @@ def materialise(ref: str, dest: Path, specs_path: str = "specs", cwd: Path | Non
         if not item:
             continue
         meta, _, name = item.partition(b"\t")
-        _, kind, oid = meta.decode().split()
+        mode, kind, oid = meta.decode().split()
         if kind == "blob":
-            entries.append((oid, PurePosixPath(name.decode())))
+            entries.append((oid, PurePosixPath(name.decode()), mode == GIT_SYMLINK_MODE))
     if not entries:
         raise SpecError(f"revision '{rev}' has no spec folder '{rel}'")
-    blobs = _git(["cat-file", "--batch"], top, "".join(f"{oid}\n" for oid, _ in entries).encode())
+    blobs = _git(["cat-file", "--batch"], top, "".join(f"{oid}\n" for oid, _, _ in entries).encode())
     pos = 0
-    for _, rel_name in entries:
+    for _, rel_name, is_link in entries:
         header_end = blobs.index(b"\n", pos)
         size = int(blobs[pos:header_end].split()[2])
         body = blobs[header_end + 1: header_end + 1 + size]
         pos = header_end + 1 + size + 1
         target = dest.joinpath(*rel_name.relative_to(rel).parts)
         target.parent.mkdir(parents=True, exist_ok=True)
-        target.write_bytes(body)
+        if is_link:
+            # a link stays a link (pointing nowhere in the copy), so the loader refuses it by name as
+            # it refuses links on disk, instead of reading the target's path as the file's text
+            target.symlink_to(dest / ".specfold-link-in-revision")
+        else:
+            target.write_bytes(body)
     return dest
 
 

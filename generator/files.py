@@ -69,8 +69,11 @@ def walk(root: str | Path, strict: bool = False) -> Iterator[tuple[tuple[str, ..
 
 
 def read_whole(path: str | Path) -> bytes:
-    """A whole file, read without buffered-IO objects (10,000 of them cost a tenth of a second)."""
-    fd = os.open(path, os.O_RDONLY | getattr(os, "O_BINARY", 0))
+    """A whole file, read without buffered-IO objects (10,000 of them cost a tenth of a second);
+    a symbolic link is not followed (OSError), as the loader refuses links in a spec tree, and a
+    named pipe is read without waiting for a writer (the loader refuses it too)."""
+    fd = os.open(path, os.O_RDONLY | getattr(os, "O_BINARY", 0) | getattr(os, "O_NOFOLLOW", 0)
+                 | getattr(os, "O_NONBLOCK", 0))
     try:
         chunks = []
         while chunk := os.read(fd, 1 << 20):
