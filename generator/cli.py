@@ -24,6 +24,7 @@ from . import propose as proposing
 from .analysis import SystemAnalysis, analyze
 from .dsp.filters import Stage
 from .errors import SpecError, SpecErrors
+from .files import write_files
 from .load import load_spec
 from .quantities import format_quantity
 from .report import counts, to_json, to_junit, to_sarif, to_text
@@ -263,8 +264,7 @@ def _cmd_propose(args: argparse.Namespace) -> int:
                  if _digest(path.read_text(encoding="utf-8")) != _digest(before)]
         if stale:
             raise SpecError(f"{', '.join(stale)} changed since it was read; nothing was written: run propose again")
-        for path, _, after in changes:
-            path.write_text(after, encoding="utf-8")
+        write_files([(path, after, True) for path, _, after in changes], "propose")
         result = load_spec(root)
     else:
         result = proposing.apply_proposals(spec, proposals)
@@ -284,14 +284,12 @@ def _cmd_new(args: argparse.Namespace) -> int:
     from .scaffold import new_channel
 
     path, text = new_channel(args.specs, args.id, args.kind, args.converter)
-    if path.exists():  # created between the check and now
+    if path.exists() or path.is_symlink():  # created between the check and now
         raise SpecError(f"{path} already exists; specfold new never overwrites a channel file")
     path.parent.mkdir(parents=True, exist_ok=True)
-    with path.open("x", encoding="utf-8", newline="\n") as fh:
-        fh.write(text)
-    print(f"wrote {path}: every key for an {args.kind} channel, commented; edit it, then 'specfold check'"
-          if args.kind[0] in "aeiou" else f"wrote {path}: every key for a {args.kind} channel, commented; "
-          "edit it, then 'specfold check'")
+    write_files([(path, text, False)], "new")
+    article = "an" if args.kind[0] in "aeiou" else "a"
+    _write(f"wrote {path}: every key for {article} {args.kind} channel, commented; edit it, then 'specfold check'\n")
     return EXIT_OK
 
 

@@ -29,7 +29,6 @@ import difflib
 import io
 import json
 import math
-import os
 import re
 import tomllib
 from collections.abc import Iterable, Mapping
@@ -40,6 +39,7 @@ from typing import Any
 from . import schema
 from .analysis import FIGURES, SystemAnalysis
 from .errors import SpecError, SpecErrors
+from .files import clean_parts, write_files
 from .load import CHANNEL_DIR, convert, parse_toml
 from .quantities import Unit, parse_quantity, parse_unit
 from .rules import Finding, by_channel, worst_status
@@ -613,16 +613,13 @@ def write_planned(specs: Path | str, planned: Iterable[Planned], force: bool = F
     if refused:
         raise SpecErrors(SpecError(f"{p.rel} exists and differs from row {p.row}; --force replaces it",
                                    p.rel) for p in refused)
-    written = []
-    for p in items:
-        if p.state == "unchanged":
-            continue
-        target = root / p.rel
-        target.parent.mkdir(parents=True, exist_ok=True)
-        tmp = target.with_name(f".{target.name}.importing")
-        tmp.write_text(p.text, encoding="utf-8", newline="\n")
-        os.replace(tmp, target)
-        written.append(p)
+    written = [p for p in items if p.state != "unchanged"]
+    clean_parts(root / CHANNEL_DIR)  # what a killed import left, even when nothing is left to write
+    for p in written:
+        (root / p.rel).parent.mkdir(parents=True, exist_ok=True)
+    # all or nothing: every file is staged (written and synced) before the first is put in place,
+    # and a file planned as new is never put over one that appeared since
+    write_files([(root / p.rel, p.text, p.state == "replace") for p in written], "import")
     return written
 
 
