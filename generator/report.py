@@ -17,6 +17,7 @@ from __future__ import annotations
 
 import json
 import math
+import re
 import xml.etree.ElementTree as ET
 from collections.abc import Iterable, Mapping, Sequence
 from typing import Any
@@ -26,6 +27,21 @@ from .analysis import ChannelResult, SystemAnalysis
 from .rules import SEVERITY_RANK, Finding, all_rules, by_channel, worst_status
 
 JSON_FORMAT = 1
+
+_CONTROLS = re.compile("[\x00-\x08\x0b-\x1f\x7f-\x9f\u061c\u200e\u200f\u202a-\u202e\u2066-\u2069]")
+"""What a terminal acts on instead of showing: C0 controls but tab and line feed (escape sequences
+start with ESC, a carriage return rewrites the line), DEL, the C1 controls, and the bidirectional
+formatting characters that reorder what is shown (Unicode Standard Annex #9)."""
+
+
+def show_controls(text: str) -> str:
+    """``text`` for a terminal, with every control character written visibly as an escape:
+    ESC is shown as ``\\x1b``, RIGHT-TO-LEFT OVERRIDE as ``\\u202e``."""
+    def shown(m: re.Match[str]) -> str:
+        code = ord(m.group(0))
+        return f"\\x{code:02x}" if code < 0x100 else f"\\u{code:04x}"
+
+    return _CONTROLS.sub(shown, text)
 
 
 def _clean(value: Any) -> Any:
