@@ -10,8 +10,10 @@ the base and is not any more counts as introduced.
 
 from __future__ import annotations
 
+import html
 import json
 import math
+import re
 import subprocess
 from collections import Counter
 from collections.abc import Iterable, Mapping
@@ -248,45 +250,68 @@ def to_text(diff: Mapping[str, Any]) -> str:
     return "\n".join(lines) + "\n"
 
 
+_MD_PUNCTUATION = re.compile(r"([\\`*_\[\]|~])")
+_MENTION = re.compile(r"(?<![\w`])([@#!])(?=[A-Za-z0-9_])")
+
+
 def _md(text: str) -> str:
-    return text.replace("|", "\\|").replace("\n", " ")
+    """Spec text as a table cell of a merge-request comment: shown as it is written, never as markup.
+
+    HTML is written as entities (so no tag reaches the page), the punctuation that starts inline
+    markup is backslash-escaped (no link, image, emphasis, strike-through or code span starts, and a
+    ``|`` does not split the cell), a line break becomes a space
+    (it would end the table row), and an @-mention, #-reference or !-reference is cut by a word
+    joiner (U+2060) so that it notifies nobody and links nothing.
+    """
+    text = html.escape(" ".join(text.splitlines()), quote=False)
+    text = _MD_PUNCTUATION.sub(r"\\\1", text)
+    return _MENTION.sub("\\1\u2060", text)
+
+
+def _code(text: str) -> str:
+    """``text`` as an inline code span that no backtick in it can close early (CommonMark 6.1)."""
+    text = " ".join(text.splitlines()).replace("|", "\\|")
+    longest = max((len(m) for m in re.findall(r"`+", text)), default=0)
+    fence = "`" * (longest + 1)
+    pad = " " if text.startswith("`") or text.endswith("`") else ""
+    return f"{fence}{pad}{text}{pad}{fence}"
 
 
 def to_markdown(diff: Mapping[str, Any]) -> str:
-    """A merge-request comment: summary line, then tables."""
+    """A merge-request comment: summary line, then tables.  Every text from the specs or the
+    command line goes through :func:`_md` or :func:`_code`."""
     ch, fi = diff["channels"], diff["findings"]
-    out = [f"### specfold: `{_md(diff['base'])}` → `{_md(diff['head'])}`", "",
+    out = [f"### specfold: {_code(diff['base'])} → {_code(diff['head'])}", "",
            f"**Channels:** {len(ch['added'])} added, {len(ch['removed'])} removed, {len(ch['changed'])} changed · "
            f"**Findings:** {len(fi['introduced'])} introduced, {len(fi['resolved'])} resolved", ""]
     if ch["added"] or ch["removed"]:
         out += ["| channel | change |", "|---|---|"]
-        out += [f"| `{c}` | added |" for c in ch["added"]] + [f"| `{c}` | removed |" for c in ch["removed"]]
+        out += [f"| {_code(c)} | added |" for c in ch["added"]] + [f"| {_code(c)} | removed |" for c in ch["removed"]]
         out.append("")
+
+    def cells(x: Mapping[str, Any]) -> str:
+        delta = _md(_fmt(x["key"], x["delta"], signed=True)) if x["delta"] is not None else ""
+        return f"{_code(x['key'])} | {_md(_fmt(x['key'], x['old']))} | {_md(_fmt(x['key'], x['new']))} | {delta}"
+
     figure_rows = [(c["id"], x) for c in ch["changed"] for x in c["figures"]]
     if figure_rows:
         out += ["#### Changed figures", "", "| channel | figure | old | new | delta |", "|---|---|---|---|---|"]
-        out += [f"| `{cid}` | `{x['key']}` | {_md(_fmt(x['key'], x['old']))} | {_md(_fmt(x['key'], x['new']))} | "
-                f"{_md(_fmt(x['key'], x['delta'], signed=True)) if x['delta'] is not None else ''} |"
-                for cid, x in figure_rows]
+        out += [f"| {_code(cid)} | {cells(x)} |" for cid, x in figure_rows]
         out.append("")
     budget_rows = [(kind, r, x) for kind, rs in diff["budgets"].items() for r in rs for x in r["changes"] or [None]]
     if budget_rows:
         out += ["#### Budgets", "", "| item | value | old | new | delta |", "|---|---|---|---|---|"]
         for kind, r, x in budget_rows:
-            name = f"{kind[:-1]} `{r['id']}`"
-            if x is None:
-                out.append(f"| {name} | {r['status']} | | | |")
-            else:
-                out.append(f"| {name} | `{x['key']}` | {_md(_fmt(x['key'], x['old']))} | "
-                           f"{_md(_fmt(x['key'], x['new']))} | "
-                           f"{_md(_fmt(x['key'], x['delta'], signed=True)) if x['delta'] is not None else ''} |")
+            name = f"{kind[:-1]} {_code(r['id'])}"
+            out.append(f"| {name} | {r['status']} | | | |" if x is None else f"| {name} | {cells(x)} |")
         out.append("")
     if fi["introduced"] or fi["resolved"]:
         out += ["#### Findings", "", "| | severity | rule | where | message |", "|---|---|---|---|---|"]
         for mark, items in (("introduced", fi["introduced"]), ("resolved", fi["resolved"])):
             for f in items:
                 sev = f"waived {f['severity']}" if f["waived"] else f["severity"]
-                out.append(f"| {mark} | {sev} | `{f['rule']}` | `{_md(f['file'])}:{f['line']}` | {_md(f['message'])} |")
+                where = f"{f['file']}:{f['line']}"
+                out.append(f"| {mark} | {sev} | {_code(f['rule'])} | {_code(where)} | {_md(f['message'])} |")
         out.append("")
     return "\n".join(out)
 

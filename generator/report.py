@@ -260,6 +260,17 @@ def to_sarif(analysis: SystemAnalysis, findings: list[Finding], prefix: str = "s
     return json.dumps(log, indent=2, ensure_ascii=False) + "\n"
 
 
+_NOT_XML = re.compile("[^\t\n\r\u0020-\ud7ff\ue000-\ufffd\U00010000-\U0010ffff]")
+"""Characters XML 1.0 cannot carry, even escaped (the Char production, XML 1.0 section 2.2)."""
+
+
+def xml_text(text: str) -> str:
+    """``text`` with every character XML 1.0 cannot carry written visibly (ESC as ``\\x1b``), so a
+    control character in a spec cannot make the JUnit report unreadable."""
+    return _NOT_XML.sub(lambda m: f"\\x{ord(m.group(0)):02x}" if ord(m.group(0)) < 0x100
+                        else f"\\u{ord(m.group(0)):04x}", text)
+
+
 def _fails(f: Finding, fail_on: str) -> bool:
     return not f.waived and fail_on != "never" and SEVERITY_RANK[f.severity] <= SEVERITY_RANK[fail_on]
 
@@ -300,5 +311,9 @@ def to_junit(analysis: SystemAnalysis, findings: list[Finding], fail_on: str = "
     root = ET.Element("testsuites", name="specfold", tests=str(n), failures=str(failures), errors="0",
                       skipped=str(skipped))
     root.append(suite)
+    for el in root.iter():  # every text and attribute from a spec file, made fit for XML 1.0
+        el.text = xml_text(el.text) if el.text else el.text
+        for name, value in el.attrib.items():
+            el.set(name, xml_text(value))
     ET.indent(root)
     return '<?xml version="1.0" encoding="UTF-8"?>\n' + ET.tostring(root, encoding="unicode") + "\n"
