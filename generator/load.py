@@ -14,6 +14,7 @@ import math
 import os
 import re
 import stat
+import sys
 import tomllib
 from collections.abc import Callable, Iterator, Mapping
 from dataclasses import dataclass, field
@@ -201,20 +202,33 @@ def parse_toml(text: str, first_line: int = 1) -> dict[str, Any]:
         raise SpecError(f"arrays or tables nested too deeply (the limit is {MAX_NESTING})",
                         line=first_line) from None
     except tomllib.TOMLDecodeError as exc:
-        msg = str(exc)
-        line = col = None
-        m = _TOML_AT.search(msg)
-        if m:
-            line, col = int(m.group(1)), int(m.group(2))
-            msg = msg[: m.start()]
-        elif _TOML_END.search(msg):
-            line = max(1, text.count("\n") + 1)
-            msg = _TOML_END.sub("", msg)
-        msg = msg[:1].lower() + msg[1:]
-        lines = text.split("\n")
-        src = lines[line - 1][:200] if line and 0 < line <= len(lines) else None
-        raise SpecError(f"not valid TOML: {msg}", line=(line or 1) + first_line - 1,
-                        column=col, source_line=src) from None
+        raise _toml_error(exc, text, first_line) from None
+    except ValueError:
+        # tomllib's int() refuses more digits than sys.get_int_max_str_digits() (4,300 by default)
+        # with a plain ValueError and no position
+        limit = sys.get_int_max_str_digits() or 4300
+        digits = re.search(rf"[0-9][0-9_]{{{limit - 1},}}", text)
+        line = text.count("\n", 0, digits.start()) + 1 if digits else 1
+        src = text.split("\n")[line - 1][:200] if digits else None
+        raise SpecError(f"a number of more than {limit:,} digits; a spec needs far fewer",
+                        line=line + first_line - 1, source_line=src) from None
+
+
+def _toml_error(exc: tomllib.TOMLDecodeError, text: str, first_line: int) -> SpecError:
+    """tomllib's message as a located :class:`SpecError`."""
+    msg = str(exc)
+    line = col = None
+    m = _TOML_AT.search(msg)
+    if m:
+        line, col = int(m.group(1)), int(m.group(2))
+        msg = msg[: m.start()]
+    elif _TOML_END.search(msg):
+        line = max(1, text.count("\n") + 1)
+        msg = _TOML_END.sub("", msg)
+    msg = msg[:1].lower() + msg[1:]
+    lines = text.split("\n")
+    src = lines[line - 1][:200] if line and 0 < line <= len(lines) else None
+    return SpecError(f"not valid TOML: {msg}", line=(line or 1) + first_line - 1, column=col, source_line=src)
 
 
 # ----------------------------------------------------------------------- checking
@@ -227,7 +241,7 @@ def _describe(value: object) -> str:
         shown = value if len(value) <= 40 else value[:37] + "..."
         return f'the string "{shown}"'
     if isinstance(value, int | float):
-        return f"the number {value}"
+        return f"the number {_number(value)}"
     if isinstance(value, list):
         return "a list"
     if isinstance(value, dict):

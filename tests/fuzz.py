@@ -472,6 +472,9 @@ TOML_NON_FINITE = ("nan", "+nan", "-nan", "inf", "+inf", "-inf")
 """Every spelling TOML 1.0 allows for a bare NaN or infinity."""
 BOUNDARY_INTS = (0, -1, 1, 2**31, 2**53 + 1, 2**63, 2**64 + 1, 10**309, -(10**309))
 """Whole numbers: zero, negative, 32- and 64-bit edges and integers past the float range."""
+LONGEST_INT = "1" + "0" * 4300
+"""A TOML integer of 4,301 digits: past Python's int/str conversion limit (a ValueError in tomllib)."""
+LONGEST_INT_LABEL = "a 4,301-digit integer"
 SI_LIMIT_TEXT = ("1.0000001e30", "9.9999999e-31", "1e30", "1e-30")
 """Each side of the loader's SI_LIMIT (1e30) and its inverse."""
 
@@ -594,7 +597,8 @@ def boundary_values(key: object, eng: str = "V") -> list[tuple[str, object]]:
     if k in (schema.INT, schema.INT_PAIR, schema.INT_LIST):
         ints = sorted({*BOUNDARY_INTS, *(int(b) for b in bounds)})
         if k == schema.INT:
-            return [(str(i), i) for i in ints] + [("1.0", 1.0), *raw_non_finite]
+            return [(str(i), i) for i in ints] + [("1.0", 1.0), (LONGEST_INT_LABEL, Raw(LONGEST_INT)),
+                                                    *raw_non_finite]
         if k == schema.INT_LIST:
             return [(f"[{i}]", [i]) for i in ints] + [("[]", []), ("[nan]", [Raw("nan")])]
         pairs = [(f"[{i}, 1]", [i, 1]) for i in ints] + [(f"[1, {i}]", [1, i]) for i in ints]

@@ -144,6 +144,7 @@ def test_boundary_trials_come_from_the_schema() -> None:
     for spelling in fuzz.TOML_NON_FINITE:
         assert any(n.endswith(f" = toml {spelling}") for n in names), spelling
     assert any(n.endswith('filter.order = 21') for n in names) and any(n.endswith('filter.order = 0') for n in names)
+    assert any(n.endswith(f"conversion.bits = {fuzz.LONGEST_INT_LABEL}") for n in names)
     assert any(n.endswith('signal.snr = "400.0 dB"') for n in names)  # at the bound, and just past it
     assert any("signal.snr = \"400.0000004 dB\"" in n for n in names)
     assert sum(" = " not in n for n in names) == len(fuzz.SWAPPED)
