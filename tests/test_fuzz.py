@@ -123,7 +123,7 @@ def test_fuzz_regression(case: Path, tmp_path: Path, capsys: pytest.CaptureFixtu
 # ----------------------------------------------------------------------------- boundary values
 
 TRIALS = fuzz.boundary_trials()
-QUICK_SAMPLE = 60
+QUICK_SAMPLE = 40
 
 
 def test_boundary_trials_come_from_the_schema() -> None:
