@@ -29,7 +29,7 @@ from . import diff as spec_diff
 from . import propose as proposing
 from .analysis import SystemAnalysis, analyze
 from .dsp.filters import Stage
-from .errors import ENVIRONMENT_ERRNOS, SpecError, SpecErrors, os_error_text
+from .errors import BUG, ENVIRONMENT_ERRNOS, SpecError, SpecErrors, bug_summary, os_error_text
 from .files import write_files
 from .load import load_spec
 from .quantities import format_quantity
@@ -413,9 +413,7 @@ def _raised_at(exc: BaseException) -> str:
 def _internal_error(exc: BaseException, show_traceback: bool) -> int:
     if show_traceback:
         traceback.print_exception(exc, file=sys.stderr)
-    detail = str(exc).split("\n", 1)[0][:300]
-    _say(f"specfold: internal error: {type(exc).__name__}{': ' + detail if detail else ''} ({_raised_at(exc)}).\n"
-         "This is a bug in specfold, not a problem in your specs; please report it with the command you ran"
+    _say(f"specfold: {bug_summary(exc)} ({_raised_at(exc)}).\n{BUG}; please report it with the command you ran"
          + ("." if show_traceback else f" and the traceback that --traceback (or {TRACEBACK_ENV}=1) prints."))
     return EXIT_INTERNAL
 

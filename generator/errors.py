@@ -111,3 +111,12 @@ def os_error_text(exc: OSError) -> str:
     """One sentence naming the path (or paths) and what is wrong with it."""
     paths = [str(p) for p in (exc.filename, exc.filename2) if p is not None]
     return f"{' -> '.join(paths)}: {os_reason(exc)}" if paths else os_reason(exc)
+
+
+BUG = "This is a bug in specfold, not a problem in your specs"
+
+
+def bug_summary(exc: BaseException) -> str:
+    """``internal error: Type: first line of the message``: how a bug in specfold is named to the user."""
+    detail = str(exc).split("\n", 1)[0][:300]
+    return f"internal error: {type(exc).__name__}{': ' + detail if detail else ''}"

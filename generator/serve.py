@@ -33,7 +33,7 @@ from pathlib import Path
 from typing import Any
 from urllib.parse import unquote
 
-from .errors import SpecError, SpecErrors
+from .errors import BUG, SpecError, SpecErrors, bug_summary
 from .files import walk
 from .site import build
 
@@ -88,9 +88,7 @@ def error_page(errors: list[SpecError], heading: str | None = None) -> str:
 
 def internal_error(exc: BaseException) -> SpecError:
     """A rebuild that failed through a bug in specfold, as a message for the error page."""
-    detail = str(exc).split("\n", 1)[0][:300]
-    return SpecError(f"internal error: {type(exc).__name__}{': ' + detail if detail else ''}. This is a bug in "
-                     "specfold, not a problem in your specs; 'specfold build --traceback' shows where it happened")
+    return SpecError(f"{bug_summary(exc)}. {BUG}; 'specfold build --traceback' shows where it happened")
 
 
 def inject(page: bytes) -> bytes:
