@@ -4,7 +4,11 @@ Exit codes
 ----------
 0  clean: no finding at or above the ``--fail-on`` level (waived findings never count)
 1  findings at or above the ``--fail-on`` level
-2  bad input or usage: every problem in every file is printed first
+2  bad input or usage, or a file or folder the command cannot use (a full disk, a read-only
+   output, a name too long): every problem in every file is printed first
+3  internal error: a bug in specfold, whatever the input; one short message says so, and
+   ``--traceback`` (or ``SPECFOLD_TRACEBACK=1``) shows where it happened
+130  interrupted (Ctrl-C)
 """
 
 from __future__ import annotations
@@ -15,7 +19,9 @@ import hashlib
 import os
 import sys
 import tempfile
+import traceback
 from collections.abc import Callable, Sequence
+from contextlib import suppress
 from pathlib import Path
 
 from . import __version__
@@ -23,18 +29,29 @@ from . import diff as spec_diff
 from . import propose as proposing
 from .analysis import SystemAnalysis, analyze
 from .dsp.filters import Stage
-from .errors import SpecError, SpecErrors
+from .errors import BUG, ENVIRONMENT_ERRNOS, SpecError, SpecErrors, bug_summary, os_error_text
+from .files import write_files
 from .load import load_spec
 from .quantities import format_quantity
-from .report import counts, to_json, to_junit, to_sarif, to_text
+from .report import counts, show_controls, to_json, to_junit, to_sarif, to_text
 from .rules import SEVERITY_RANK, Finding, all_rules, run_rules
 
 EXIT_OK = 0
 EXIT_FINDINGS = 1
 EXIT_BAD_INPUT = 2
+EXIT_INTERNAL = 3
+EXIT_INTERRUPTED = 130  # 128 + SIGINT, as shells report a process ended by Ctrl-C
+
+TRACEBACK_ENV = "SPECFOLD_TRACEBACK"
+"""Set to 1 (as ``--traceback`` does) to print the traceback of an internal error."""
 
 DEFAULT_SPECS = "specs"
 DEFAULT_OUTPUT = "output"
+
+
+def _say(text: str) -> None:
+    """A message on stderr, its control characters shown rather than acted on by the terminal."""
+    print(show_controls(text), file=sys.stderr, flush=True)
 
 
 class _Parser(argparse.ArgumentParser):
@@ -42,13 +59,17 @@ class _Parser(argparse.ArgumentParser):
 
     def error(self, message: str) -> None:  # type: ignore[override]
         self.print_usage(sys.stderr)
-        print(f"specfold: {message}", file=sys.stderr)
+        _say(f"specfold: {message}")
         raise SystemExit(EXIT_BAD_INPUT)
+
+
+TRACEBACK_HELP = "on an internal error (exit 3), print the full traceback for the bug report"
 
 
 def _parser() -> argparse.ArgumentParser:
     p = _Parser(prog="specfold", description="Data-acquisition channel requirements: computed, checked, published.")
     p.add_argument("--version", action="version", version=f"specfold {__version__}")
+    p.add_argument("--traceback", action="store_true", help=TRACEBACK_HELP)
     sub = p.add_subparsers(dest="command", required=True, parser_class=_Parser)
 
     check = sub.add_parser("check", help="load the specs, compute every figure, report findings")
@@ -107,6 +128,9 @@ def _parser() -> argparse.ArgumentParser:
     serve.add_argument("--port", type=int, default=8000, help="port on 127.0.0.1 (default 8000; 0: any free port)")
     serve.add_argument("-o", "--output", default=None,
                        help="site folder (default: a temporary folder removed on exit)")
+    for command in sub.choices.values():
+        # accepted after the command too; SUPPRESS keeps it from undoing a --traceback given before it
+        command.add_argument("--traceback", action="store_true", default=argparse.SUPPRESS, help=TRACEBACK_HELP)
     return p
 
 
@@ -131,13 +155,17 @@ def _repo_prefix(specs: str) -> str:
         return Path(os.path.relpath(path)).as_posix()
 
 
-def _write(text: str, ascii_text: Callable[[], str] | None = None) -> None:
+def _write(text: str, ascii_text: Callable[[], str] | None = None, escaped: bool = False) -> None:
     """Write to stdout even where its encoding lacks µ, ±, √ or ² (an ASCII console or pipe).
 
     Such a stream used to end the run with a UnicodeEncodeError traceback.  ``ascii_text``
     gives an all-ASCII rendering that keeps the output's format (JSON with \\u escapes);
-    without it, unencodable characters are written as backslash escapes.
+    without it, unencodable characters are written as backslash escapes.  Text is for a terminal
+    and has its control characters shown (:func:`report.show_controls`) unless ``escaped``: a
+    format that escapes for its own reader (JSON, XML, CSV, Markdown).
     """
+    if not escaped:
+        text = show_controls(text)
     try:
         sys.stdout.write(text)
     except UnicodeEncodeError:
@@ -150,11 +178,11 @@ def _cmd_check(args: argparse.Namespace) -> int:
     analysis = _load(args.specs)
     findings = run_rules(analysis)
     if args.format == "json":
-        _write(to_json(analysis, findings), lambda: to_json(analysis, findings, ascii_only=True))
+        _write(to_json(analysis, findings), lambda: to_json(analysis, findings, ascii_only=True), escaped=True)
     elif args.format == "junit":
-        _write(to_junit(analysis, findings, args.fail_on, _repo_prefix(args.specs)))
+        _write(to_junit(analysis, findings, args.fail_on, _repo_prefix(args.specs)), escaped=True)
     elif args.format == "sarif":
-        _write(to_sarif(analysis, findings, _repo_prefix(args.specs)))
+        _write(to_sarif(analysis, findings, _repo_prefix(args.specs)), escaped=True)
     else:
         _write(to_text(analysis, findings))
     return EXIT_FINDINGS if fails(findings, args.fail_on) else EXIT_OK
@@ -166,7 +194,7 @@ def _cmd_diff(args: argparse.Namespace) -> int:
         head = spec_diff.load_side(args.head or args.specs, Path(scratch) / "head", args.specs)
         result = spec_diff.compare(base, head)
     render = {"json": spec_diff.to_json, "markdown": spec_diff.to_markdown}.get(args.format, spec_diff.to_text)
-    _write(render(result))
+    _write(render(result), escaped=args.format != "text")
     return EXIT_FINDINGS if spec_diff.introduces(result, args.fail_on) else EXIT_OK
 
 
@@ -186,9 +214,9 @@ def _cmd_build(args: argparse.Namespace) -> int:
                     incremental=not args.fresh)
     c = counts(summary.findings)
     index = summary.output / "index.html"
-    print(
+    _write(
         f"built {summary.pages} pages for {summary.channels} channel{'s' if summary.channels != 1 else ''} "
-        f"({c['error']} error(s), {c['warning']} warning(s), {c['info']} note(s), {c['waived']} waived): {index}"
+        f"({c['error']} error(s), {c['warning']} warning(s), {c['info']} note(s), {c['waived']} waived): {index}\n"
     )
     return EXIT_OK
 
@@ -263,8 +291,7 @@ def _cmd_propose(args: argparse.Namespace) -> int:
                  if _digest(path.read_text(encoding="utf-8")) != _digest(before)]
         if stale:
             raise SpecError(f"{', '.join(stale)} changed since it was read; nothing was written: run propose again")
-        for path, _, after in changes:
-            path.write_text(after, encoding="utf-8")
+        write_files([(path, after, True) for path, _, after in changes], "propose")
         result = load_spec(root)
     else:
         result = proposing.apply_proposals(spec, proposals)
@@ -284,14 +311,12 @@ def _cmd_new(args: argparse.Namespace) -> int:
     from .scaffold import new_channel
 
     path, text = new_channel(args.specs, args.id, args.kind, args.converter)
-    if path.exists():  # created between the check and now
+    if path.exists() or path.is_symlink():  # created between the check and now
         raise SpecError(f"{path} already exists; specfold new never overwrites a channel file")
     path.parent.mkdir(parents=True, exist_ok=True)
-    with path.open("x", encoding="utf-8", newline="\n") as fh:
-        fh.write(text)
-    print(f"wrote {path}: every key for an {args.kind} channel, commented; edit it, then 'specfold check'"
-          if args.kind[0] in "aeiou" else f"wrote {path}: every key for a {args.kind} channel, commented; "
-          "edit it, then 'specfold check'")
+    write_files([(path, text, False)], "new")
+    article = "an" if args.kind[0] in "aeiou" else "a"
+    _write(f"wrote {path}: every key for {article} {args.kind} channel, commented; edit it, then 'specfold check'\n")
     return EXIT_OK
 
 
@@ -320,9 +345,9 @@ def _cmd_export(args: argparse.Namespace) -> int:
     analysis = _load(args.specs)
     columns, rows = export_table(analysis, run_rules(analysis))
     if args.format == "json":
-        _write(to_json_table(columns, rows), lambda: to_json_table(columns, rows, ascii_only=True))
+        _write(to_json_table(columns, rows), lambda: to_json_table(columns, rows, ascii_only=True), escaped=True)
     else:
-        _write(to_csv(columns, rows))
+        _write(to_csv(columns, rows), escaped=True)
     return EXIT_OK
 
 
@@ -342,7 +367,7 @@ def _cmd_serve(args: argparse.Namespace) -> int:
         output = str(Path(scratch) / "site")
 
     def say(message: str) -> None:
-        print(f"specfold serve: {message}", file=sys.stderr, flush=True)
+        _say(f"specfold serve: {message}")
 
     preview = Preview(Path(args.specs), Path(output), args.port, on_event=say)
     # Ctrl-C (or SIGTERM) only sets a flag: a KeyboardInterrupt raised between two statements,
@@ -355,8 +380,9 @@ def _cmd_serve(args: argparse.Namespace) -> int:
         except OSError as exc:
             raise SpecError(f"cannot serve on 127.0.0.1:{args.port}: {exc.strerror or exc}; "
                             "try another --port, or 0 for any free one") from None
-        print(f"serving {args.specs} at http://127.0.0.1:{port}/ (port {port}); "
-              "pages reload when a spec is saved; Ctrl-C stops", flush=True)
+        _write(f"serving {args.specs} at http://127.0.0.1:{port}/ (port {port}); "
+               "pages reload when a spec is saved; Ctrl-C stops\n")
+        sys.stdout.flush()
         while not stopping.wait(0.5):
             pass
         say("stopping")
@@ -373,17 +399,57 @@ COMMANDS = {"check": _cmd_check, "build": _cmd_build, "diff": _cmd_diff, "rules"
             "import": _cmd_import, "export": _cmd_export, "serve": _cmd_serve, "propose": _cmd_propose}
 
 
+def _raised_at(exc: BaseException) -> str:
+    """Where in specfold the exception was raised: the innermost frame of this package."""
+    package = Path(__file__).resolve().parent
+    where = ""
+    for frame in traceback.extract_tb(exc.__traceback__):
+        path = Path(frame.filename)
+        if package in path.parents:
+            where = f"{path.relative_to(package.parent).as_posix()}:{frame.lineno}, in {frame.name}"
+    return where or "outside specfold's own code"
+
+
+def _internal_error(exc: BaseException, show_traceback: bool) -> int:
+    if show_traceback:
+        traceback.print_exception(exc, file=sys.stderr)
+    _say(f"specfold: {bug_summary(exc)} ({_raised_at(exc)}).\n{BUG}; please report it with the command you ran"
+         + ("." if show_traceback else f" and the traceback that --traceback (or {TRACEBACK_ENV}=1) prints."))
+    return EXIT_INTERNAL
+
+
+def _stdout_closed() -> None:
+    """The reader of stdout went away (``specfold check | head``): stop writing to it quietly."""
+    with suppress(OSError, ValueError):
+        devnull = os.open(os.devnull, os.O_WRONLY)
+        os.dup2(devnull, sys.stdout.fileno())
+
+
 def main(argv: Sequence[str] | None = None) -> int:
     """Run one command; returns the exit code."""
     args = _parser().parse_args(argv)
+    show_traceback = bool(args.traceback) or os.environ.get(TRACEBACK_ENV, "") not in ("", "0")
     try:
         return COMMANDS[args.command](args)
     except SpecErrors as errs:
         for err in errs.errors:
-            print(err.format(), file=sys.stderr)
+            _say(err.format())
         n = len(errs.errors)
-        print(f"specfold: {n} problem{'s' if n != 1 else ''} in the specs; nothing was checked", file=sys.stderr)
+        _say(f"specfold: {n} problem{'s' if n != 1 else ''} in the specs; nothing was checked")
         return EXIT_BAD_INPUT
     except SpecError as err:
-        print(f"specfold: {err.format()}", file=sys.stderr)
+        _say(f"specfold: {err.format()}")
         return EXIT_BAD_INPUT
+    except KeyboardInterrupt:
+        _say("specfold: interrupted")
+        return EXIT_INTERRUPTED
+    except BrokenPipeError:
+        _stdout_closed()
+        return EXIT_BAD_INPUT
+    except OSError as exc:
+        if exc.errno in ENVIRONMENT_ERRNOS:
+            _say(f"specfold: {os_error_text(exc)}")
+            return EXIT_BAD_INPUT
+        return _internal_error(exc, show_traceback)
+    except Exception as exc:  # anything else is a bug: exit 3, never the findings code
+        return _internal_error(exc, show_traceback)

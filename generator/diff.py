@@ -10,8 +10,10 @@ the base and is not any more counts as introduced.
 
 from __future__ import annotations
 
+import html
 import json
 import math
+import re
 import subprocess
 from collections import Counter
 from collections.abc import Iterable, Mapping
@@ -27,6 +29,8 @@ from .report import finding_dict
 from .rules import SEVERITY_RANK, Finding, run_rules
 
 DIFF_FORMAT = 1
+GIT_SYMLINK_MODE = "120000"
+"""The mode git records for a symbolic link (git ls-tree)."""
 
 # budget values compared per item (the rest of each budget is identity or limits)
 BUDGET_KEYS: Mapping[str, tuple[str, ...]] = {
@@ -82,21 +86,26 @@ def materialise(ref: str, dest: Path, specs_path: str = "specs", cwd: Path | Non
         if not item:
             continue
         meta, _, name = item.partition(b"\t")
-        _, kind, oid = meta.decode().split()
+        mode, kind, oid = meta.decode().split()
         if kind == "blob":
-            entries.append((oid, PurePosixPath(name.decode())))
+            entries.append((oid, PurePosixPath(name.decode()), mode == GIT_SYMLINK_MODE))
     if not entries:
         raise SpecError(f"revision '{rev}' has no spec folder '{rel}'")
-    blobs = _git(["cat-file", "--batch"], top, "".join(f"{oid}\n" for oid, _ in entries).encode())
+    blobs = _git(["cat-file", "--batch"], top, "".join(f"{oid}\n" for oid, _, _ in entries).encode())
     pos = 0
-    for _, rel_name in entries:
+    for _, rel_name, is_link in entries:
         header_end = blobs.index(b"\n", pos)
         size = int(blobs[pos:header_end].split()[2])
         body = blobs[header_end + 1: header_end + 1 + size]
         pos = header_end + 1 + size + 1
         target = dest.joinpath(*rel_name.relative_to(rel).parts)
         target.parent.mkdir(parents=True, exist_ok=True)
-        target.write_bytes(body)
+        if is_link:
+            # a link stays a link (pointing nowhere in the copy), so the loader refuses it by name as
+            # it refuses links on disk, instead of reading the target's path as the file's text
+            target.symlink_to(dest / ".specfold-link-in-revision")
+        else:
+            target.write_bytes(body)
     return dest
 
 
@@ -241,45 +250,68 @@ def to_text(diff: Mapping[str, Any]) -> str:
     return "\n".join(lines) + "\n"
 
 
+_MD_PUNCTUATION = re.compile(r"([\\`*_\[\]|~])")
+_MENTION = re.compile(r"(?<![\w`])([@#!])(?=[A-Za-z0-9_])")
+
+
 def _md(text: str) -> str:
-    return text.replace("|", "\\|").replace("\n", " ")
+    """Spec text as a table cell of a merge-request comment: shown as it is written, never as markup.
+
+    HTML is written as entities (so no tag reaches the page), the punctuation that starts inline
+    markup is backslash-escaped (no link, image, emphasis, strike-through or code span starts, and a
+    ``|`` does not split the cell), a line break becomes a space
+    (it would end the table row), and an @-mention, #-reference or !-reference is cut by a word
+    joiner (U+2060) so that it notifies nobody and links nothing.
+    """
+    text = html.escape(" ".join(text.splitlines()), quote=False)
+    text = _MD_PUNCTUATION.sub(r"\\\1", text)
+    return _MENTION.sub("\\1\u2060", text)
+
+
+def _code(text: str) -> str:
+    """``text`` as an inline code span that no backtick in it can close early (CommonMark 6.1)."""
+    text = " ".join(text.splitlines()).replace("|", "\\|")
+    longest = max((len(m) for m in re.findall(r"`+", text)), default=0)
+    fence = "`" * (longest + 1)
+    pad = " " if text.startswith("`") or text.endswith("`") else ""
+    return f"{fence}{pad}{text}{pad}{fence}"
 
 
 def to_markdown(diff: Mapping[str, Any]) -> str:
-    """A merge-request comment: summary line, then tables."""
+    """A merge-request comment: summary line, then tables.  Every text from the specs or the
+    command line goes through :func:`_md` or :func:`_code`."""
     ch, fi = diff["channels"], diff["findings"]
-    out = [f"### specfold: `{_md(diff['base'])}` → `{_md(diff['head'])}`", "",
+    out = [f"### specfold: {_code(diff['base'])} → {_code(diff['head'])}", "",
            f"**Channels:** {len(ch['added'])} added, {len(ch['removed'])} removed, {len(ch['changed'])} changed · "
            f"**Findings:** {len(fi['introduced'])} introduced, {len(fi['resolved'])} resolved", ""]
     if ch["added"] or ch["removed"]:
         out += ["| channel | change |", "|---|---|"]
-        out += [f"| `{c}` | added |" for c in ch["added"]] + [f"| `{c}` | removed |" for c in ch["removed"]]
+        out += [f"| {_code(c)} | added |" for c in ch["added"]] + [f"| {_code(c)} | removed |" for c in ch["removed"]]
         out.append("")
+
+    def cells(x: Mapping[str, Any]) -> str:
+        delta = _md(_fmt(x["key"], x["delta"], signed=True)) if x["delta"] is not None else ""
+        return f"{_code(x['key'])} | {_md(_fmt(x['key'], x['old']))} | {_md(_fmt(x['key'], x['new']))} | {delta}"
+
     figure_rows = [(c["id"], x) for c in ch["changed"] for x in c["figures"]]
     if figure_rows:
         out += ["#### Changed figures", "", "| channel | figure | old | new | delta |", "|---|---|---|---|---|"]
-        out += [f"| `{cid}` | `{x['key']}` | {_md(_fmt(x['key'], x['old']))} | {_md(_fmt(x['key'], x['new']))} | "
-                f"{_md(_fmt(x['key'], x['delta'], signed=True)) if x['delta'] is not None else ''} |"
-                for cid, x in figure_rows]
+        out += [f"| {_code(cid)} | {cells(x)} |" for cid, x in figure_rows]
         out.append("")
     budget_rows = [(kind, r, x) for kind, rs in diff["budgets"].items() for r in rs for x in r["changes"] or [None]]
     if budget_rows:
         out += ["#### Budgets", "", "| item | value | old | new | delta |", "|---|---|---|---|---|"]
         for kind, r, x in budget_rows:
-            name = f"{kind[:-1]} `{r['id']}`"
-            if x is None:
-                out.append(f"| {name} | {r['status']} | | | |")
-            else:
-                out.append(f"| {name} | `{x['key']}` | {_md(_fmt(x['key'], x['old']))} | "
-                           f"{_md(_fmt(x['key'], x['new']))} | "
-                           f"{_md(_fmt(x['key'], x['delta'], signed=True)) if x['delta'] is not None else ''} |")
+            name = f"{kind[:-1]} {_code(r['id'])}"
+            out.append(f"| {name} | {r['status']} | | | |" if x is None else f"| {name} | {cells(x)} |")
         out.append("")
     if fi["introduced"] or fi["resolved"]:
         out += ["#### Findings", "", "| | severity | rule | where | message |", "|---|---|---|---|---|"]
         for mark, items in (("introduced", fi["introduced"]), ("resolved", fi["resolved"])):
             for f in items:
                 sev = f"waived {f['severity']}" if f["waived"] else f["severity"]
-                out.append(f"| {mark} | {sev} | `{f['rule']}` | `{_md(f['file'])}:{f['line']}` | {_md(f['message'])} |")
+                where = f"{f['file']}:{f['line']}"
+                out.append(f"| {mark} | {sev} | {_code(f['rule'])} | {_code(where)} | {_md(f['message'])} |")
         out.append("")
     return "\n".join(out)
 

@@ -9,8 +9,12 @@ of them, from all files, are raised together as :class:`SpecErrors`.
 from __future__ import annotations
 
 import difflib
+import errno
 import math
+import os
 import re
+import stat
+import sys
 import tomllib
 from collections.abc import Callable, Iterator, Mapping
 from dataclasses import dataclass, field
@@ -199,20 +203,33 @@ def parse_toml(text: str, first_line: int = 1) -> dict[str, Any]:
         raise SpecError(f"arrays or tables nested too deeply (the limit is {MAX_NESTING})",
                         line=first_line) from None
     except tomllib.TOMLDecodeError as exc:
-        msg = str(exc)
-        line = col = None
-        m = _TOML_AT.search(msg)
-        if m:
-            line, col = int(m.group(1)), int(m.group(2))
-            msg = msg[: m.start()]
-        elif _TOML_END.search(msg):
-            line = max(1, text.count("\n") + 1)
-            msg = _TOML_END.sub("", msg)
-        msg = msg[:1].lower() + msg[1:]
-        lines = text.split("\n")
-        src = lines[line - 1][:200] if line and 0 < line <= len(lines) else None
-        raise SpecError(f"not valid TOML: {msg}", line=(line or 1) + first_line - 1,
-                        column=col, source_line=src) from None
+        raise _toml_error(exc, text, first_line) from None
+    except ValueError:
+        # tomllib's int() refuses more digits than sys.get_int_max_str_digits() (4,300 by default)
+        # with a plain ValueError and no position
+        limit = sys.get_int_max_str_digits() or 4300
+        digits = re.search(rf"[0-9][0-9_]{{{limit - 1},}}", text)
+        line = text.count("\n", 0, digits.start()) + 1 if digits else 1
+        src = text.split("\n")[line - 1][:200] if digits else None
+        raise SpecError(f"a number of more than {limit:,} digits; a spec needs far fewer",
+                        line=line + first_line - 1, source_line=src) from None
+
+
+def _toml_error(exc: tomllib.TOMLDecodeError, text: str, first_line: int) -> SpecError:
+    """tomllib's message as a located :class:`SpecError`."""
+    msg = str(exc)
+    line = col = None
+    m = _TOML_AT.search(msg)
+    if m:
+        line, col = int(m.group(1)), int(m.group(2))
+        msg = msg[: m.start()]
+    elif _TOML_END.search(msg):
+        line = max(1, text.count("\n") + 1)
+        msg = _TOML_END.sub("", msg)
+    msg = msg[:1].lower() + msg[1:]
+    lines = text.split("\n")
+    src = lines[line - 1][:200] if line and 0 < line <= len(lines) else None
+    return SpecError(f"not valid TOML: {msg}", line=(line or 1) + first_line - 1, column=col, source_line=src)
 
 
 # ----------------------------------------------------------------------- checking
@@ -225,7 +242,7 @@ def _describe(value: object) -> str:
         shown = value if len(value) <= 40 else value[:37] + "..."
         return f'the string "{shown}"'
     if isinstance(value, int | float):
-        return f"the number {value}"
+        return f"the number {_number(value)}"
     if isinstance(value, list):
         return "a list"
     if isinstance(value, dict):
@@ -294,13 +311,24 @@ def _check_physical(number: float, label: str) -> None:
                         f"({1 / SI_LIMIT:g} to {SI_LIMIT:g}); check the number and its prefix")
 
 
-def _check_bounds(key: Key, number: float, label: str) -> None:
+def _number(value: float, unit: str = "") -> str:
+    """A number for a message; a whole number of any size (TOML integers have no limit) is shortened."""
+    if isinstance(value, int) and not isinstance(value, bool):
+        digits = str(value)
+        text = digits if len(digits) <= 24 else f"{digits[:12]}... ({len(digits.lstrip('-'))} digits)"
+    else:
+        text = f"{value:g}"
+    return f"{text} {unit}" if unit else text
+
+
+def _check_bounds(key: Key, number: float, label: str, unit: str = "") -> None:
+    """The schema's bounds on one number (a whole number is compared exactly, never as a float)."""
     if key.positive and not number > 0:
-        raise SpecError(f"{label}: must be greater than zero, found {number:g}")
+        raise SpecError(f"{label}: must be greater than zero, found {_number(number, unit)}")
     if key.minimum is not None and number < key.minimum:
-        raise SpecError(f"{label}: must be at least {key.minimum:g}, found {number:g}")
+        raise SpecError(f"{label}: must be at least {_number(key.minimum, unit)}, found {_number(number, unit)}")
     if key.maximum is not None and number > key.maximum:
-        raise SpecError(f"{label}: must be at most {key.maximum:g}, found {number:g}")
+        raise SpecError(f"{label}: must be at most {_number(key.maximum, unit)}, found {_number(number, unit)}")
 
 
 def _int(key: Key, value: object, label: str) -> int:
@@ -309,6 +337,17 @@ def _int(key: Key, value: object, label: str) -> int:
                         f"found {_describe(value)}")
     _check_bounds(key, value, label)
     return value
+
+
+def _finite_float(value: int | float, label: str, example: str) -> float:
+    """A TOML number as a float; an integer past the float range is refused, not an OverflowError."""
+    try:
+        number = float(value)
+    except OverflowError:
+        number = math.inf
+    if not math.isfinite(number):
+        raise SpecError(f"{label}: expected a finite number such as {example}, found {_number(value)}")
+    return number
 
 
 def convert(key: Key, value: object, unit: Unit | None, label: str) -> Any:
@@ -352,25 +391,31 @@ def convert(key: Key, value: object, unit: Unit | None, label: str) -> Any:
             raise SpecError(f"{label}: the first number must not exceed the second")
         return items
     if kind == schema.FLOAT:
-        if isinstance(value, bool) or not isinstance(value, int | float) or not math.isfinite(value):
+        if isinstance(value, bool) or not isinstance(value, int | float):
             raise SpecError(f"{label}: expected a plain number such as {key.example}, found {_describe(value)}")
-        _check_bounds(key, float(value), label)
-        return float(value)
+        number = _finite_float(value, label, key.example)
+        _check_bounds(key, number, label)
+        return number
     if kind == schema.GAIN:
         if isinstance(value, int | float) and not isinstance(value, bool):
-            number = float(value)
-            if not math.isfinite(number):
-                raise SpecError(f"{label}: expected a finite number, found {value}")
+            number = _finite_float(value, label, key.example)
         elif isinstance(value, str):
             q = parse_quantity(value, ("dB", "1"), label)
-            if q.dim == "dB" and abs(q.value) > 6000:
-                # 10 ** (dB / 20) overflows a float past about 6000 dB (found by the fuzz corpus)
-                raise SpecError(f"{label}: \"{value}\" is beyond any real gain; expected a gain such as \"20 dB\"")
-            number = 10 ** (q.value / 20) if q.dim == "dB" else q.value
+            if q.dim == "dB":
+                if abs(q.value) > schema.GAIN_LIMIT_DB:
+                    raise SpecError(f"{label}: \"{value}\" is beyond any real gain; expected a gain between "
+                                    f"-{schema.GAIN_LIMIT_DB:g} dB and {schema.GAIN_LIMIT_DB:g} dB")
+                number = 10 ** (q.value / 20)
+            else:
+                number = q.value
         else:
             raise SpecError(f"{label}: expected a number (V/V) or a gain in dB such as \"20 dB\", "
                             f"found {_describe(value)}")
-        _check_bounds(key, number, label)
+        low, high = key.minimum or 0.0, key.maximum or math.inf
+        if not (low <= number <= high and number > 0):
+            raise SpecError(f"{label}: {_number(number)} V/V is beyond any real gain; expected "
+                            f"{_number(key.minimum or 0)} to {_number(key.maximum or 0)} V/V "
+                            f"(-{schema.GAIN_LIMIT_DB:g} dB to {schema.GAIN_LIMIT_DB:g} dB)")
         return number
     dims = _dims_for(key, unit)
     if kind == schema.QUANTITY:
@@ -378,11 +423,13 @@ def convert(key: Key, value: object, unit: Unit | None, label: str) -> Any:
             raise SpecError(f"{label}: expected a value with its unit in quotes, such as {key.example}, "
                             f"found {_describe(value)}")
         q = parse_quantity(value, dims, label)
-        if q.dim not in ("dB", "dBFS"):
+        if q.dim in ("dB", "dBFS"):
+            # a level or a ratio: the key's bounds are in dB, and the SI limit means nothing to a logarithm
+            _check_bounds(key, q.value, label, q.dim)
+        else:
             _check_physical(q.value, label)
-            _check_bounds(key, q.value, label)
-        elif key.positive and q.value < 0:
-            raise SpecError(f"{label}: must not be negative, found {value}")
+            if not any(d in ("dB", "dBFS") for d in key.dims):  # a tone in volts: its bounds are in dBFS
+                _check_bounds(key, q.value, label)
         return q
     if kind == schema.SPAN:
         if not isinstance(value, str):
@@ -448,16 +495,53 @@ def _value(q: Any) -> float | None:
 # ------------------------------------------------------------------------ system
 
 
+LINK_REFUSED = ("{rel} is a symbolic link; specfold reads only regular files inside the spec folder and refuses "
+                "every link in it, so that a spec cannot pull in a file from elsewhere: put the file itself here")
+"""The link policy, said wherever a link is met (system.toml, channel files, folders below channels/)."""
+
+_OPEN_FLAGS = os.O_RDONLY | getattr(os, "O_NOFOLLOW", 0) | getattr(os, "O_NONBLOCK", 0) | getattr(os, "O_BINARY", 0)
+"""A spec file is opened without following a link (the check and the open are one step) and without
+waiting on a named pipe, which would otherwise block the read for ever."""
+
+
+def _read_bytes(path: Path, rel: str) -> bytes:
+    """The bytes of a regular file inside the tree; a :class:`SpecError` for a link, a folder, a pipe
+    or a device, a file past :data:`MAX_FILE_BYTES`, or one that cannot be read."""
+    if path.is_symlink():
+        raise SpecError(LINK_REFUSED.format(rel=rel), rel)
+    try:
+        fd = os.open(path, _OPEN_FLAGS)
+    except OSError as exc:
+        if exc.errno == errno.ELOOP:  # made a link after the check above
+            raise SpecError(LINK_REFUSED.format(rel=rel), rel) from None
+        raise SpecError(f"cannot read the file: {exc.strerror or exc}", rel) from None
+    try:
+        info = os.fstat(fd)
+        if not stat.S_ISREG(info.st_mode):
+            raise SpecError("not a regular file (a folder, a pipe or a device); a spec file is plain text", rel)
+        if info.st_size > MAX_FILE_BYTES:
+            raise SpecError(f"the file is {info.st_size:,} bytes; spec files are limited to {MAX_FILE_BYTES:,} bytes",
+                            rel)
+        chunks: list[bytes] = []
+        size = 0
+        while size <= MAX_FILE_BYTES and (chunk := os.read(fd, 1 << 20)):
+            chunks.append(chunk)
+            size += len(chunk)
+    except OSError as exc:
+        raise SpecError(f"cannot read the file: {exc.strerror or exc}", rel) from None
+    finally:
+        os.close(fd)
+    if size > MAX_FILE_BYTES:  # grew while it was read
+        raise SpecError(f"the file is over {MAX_FILE_BYTES:,} bytes; spec files are limited to "
+                        f"{MAX_FILE_BYTES:,} bytes", rel)
+    return b"".join(chunks)
+
+
 def _read_file(path: Path, rel: str, problems: list[SpecError]) -> str | None:
     try:
-        size = path.stat().st_size
-        if size > MAX_FILE_BYTES:
-            problems.append(SpecError(f"the file is {size:,} bytes; spec files are limited to "
-                                      f"{MAX_FILE_BYTES:,} bytes", rel))
-            return None
-        data = path.read_bytes()
-    except OSError as exc:
-        problems.append(SpecError(f"cannot read the file: {exc.strerror or exc}", rel))
+        data = _read_bytes(path, rel)
+    except SpecError as err:
+        problems.append(err)
         return None
     try:
         text = data.decode("utf-8")
@@ -465,12 +549,17 @@ def _read_file(path: Path, rel: str, problems: list[SpecError]) -> str | None:
         line = data[: exc.start].count(b"\n") + 1
         problems.append(SpecError(f"the file is not UTF-8 text (byte 0x{data[exc.start]:02x})", rel, line))
         return None
-    return text.removeprefix("\ufeff").replace("\r\n", "\n")
+    # Windows (CR LF) and old Mac (CR alone) line endings read as LF: TOML allows no bare CR, so a
+    # CR-only file would otherwise be a single line that "does not start with +++"
+    return text.removeprefix("\ufeff").replace("\r\n", "\n").replace("\r", "\n")
 
 
 def _load_system(root: Path, problems: list[SpecError]) -> System | None:
     path = root / SYSTEM_FILE
-    if not path.is_file():
+    if path.is_symlink():
+        problems.append(SpecError(LINK_REFUSED.format(rel=SYSTEM_FILE), SYSTEM_FILE))
+        return None
+    if not path.exists():
         problems.append(SpecError(f"no {SYSTEM_FILE} in {root}; it holds what the channels share "
                                   "(see 'specfold new' and the README)", SYSTEM_FILE))
         return None
@@ -667,8 +756,16 @@ def _load_channel(path: Path, rel: str, system: System | None, problems: list[Sp
                 if key.table == "filter" and key.families and key.name in f and family not in key.families:
                     src.problem(key.path, f"{key.name} does not shape a {family} filter (it applies to "
                                           f"{' and '.join(key.families)} filters): remove it")
-            filt = Filter(family, f.get("order"), _value(f.get("corner")),
-                          _value(f.get("ripple")) or 0.1, _value(f.get("stopband_attenuation")) or 80.0)
+            ripple = _value(f.get("ripple")) or 0.1
+            stopband = _value(f.get("stopband_attenuation")) or 80.0
+            if family == "elliptic" and ripple >= stopband:
+                # the two values swapped is the usual slip; an elliptic prototype needs ripple < attenuation
+                src.problem("filter.ripple" if "ripple" in f else "filter.stopband_attenuation",
+                            f"[filter] an elliptic filter's ripple ({ripple:g} dB"
+                            f"{'' if 'ripple' in f else ', the default'}) must be below its stopband_attenuation "
+                            f"({stopband:g} dB{'' if 'stopband_attenuation' in f else ', the default'}); "
+                            "are the two values swapped?")
+            filt = Filter(family, f.get("order"), _value(f.get("corner")), ripple, stopband)
     if kind == "output" and conv_raw.get("sinc_compensation") and conv_raw.get("hold") == "none":
         src.problem("conversion.sinc_compensation", "sinc_compensation corrects the droop of a zero-order hold, "
                                                     'and this output has hold = "none": remove one of the two')
@@ -759,11 +856,13 @@ def _resolve_conversion(src: _Source, raw: dict[str, Any], kind: str, system: Sy
 def channel_files(root: Path) -> list[Path]:
     """Every channel file under ``root/channels``, in a stable order.
 
-    Regular files named ``*.md`` only: symbolic links (to files or folders) are never followed
-    (:func:`generator.files.walk`: a tree of 10,000 files is listed without a ``stat`` per file).
+    Everything named ``*.md`` that is not a folder, and every symbolic link to a folder: links are
+    never followed, and a link, a pipe or a device is listed so that the loader refuses it by name
+    (:func:`_read_bytes`) instead of skipping it unseen (:func:`generator.files.walk`: 10,000 files
+    are listed without a ``stat`` each).
     """
     found = [(parts, entry.path) for parts, entry in walk(root / CHANNEL_DIR)
-             if entry.name.endswith(".md") and entry.is_file(follow_symlinks=False)]
+             if entry.name.endswith(".md") or (entry.is_symlink() and entry.is_dir())]
     found.sort(key=lambda item: item[0])  # the order of sorted() on the paths, without Path comparisons
     return [Path(path) for _, path in found]
 
@@ -790,6 +889,8 @@ def load_spec(root: Path | str, on_file: Callable[[], None] | None = None,
     if not root.is_dir():
         raise SpecErrors([SpecError(f"'{root}' is not a folder of specs (expected system.toml and channels/)")])
     system = known_system if known_system is not None else _load_system(root, problems)
+    if (root / CHANNEL_DIR).is_symlink():
+        raise SpecErrors([*problems, SpecError(LINK_REFUSED.format(rel=CHANNEL_DIR), CHANNEL_DIR)])
     files = channel_files(root)
     if len(files) > MAX_CHANNELS:
         raise SpecErrors([SpecError(f"{len(files):,} channel files; a spec tree is limited to "

@@ -17,6 +17,7 @@ from __future__ import annotations
 
 import json
 import math
+import re
 import xml.etree.ElementTree as ET
 from collections.abc import Iterable, Mapping, Sequence
 from typing import Any
@@ -26,6 +27,21 @@ from .analysis import ChannelResult, SystemAnalysis
 from .rules import SEVERITY_RANK, Finding, all_rules, by_channel, worst_status
 
 JSON_FORMAT = 1
+
+_CONTROLS = re.compile("[\x00-\x08\x0b-\x1f\x7f-\x9f\u061c\u200e\u200f\u202a-\u202e\u2066-\u2069]")
+"""What a terminal acts on instead of showing: C0 controls but tab and line feed (escape sequences
+start with ESC, a carriage return rewrites the line), DEL, the C1 controls, and the bidirectional
+formatting characters that reorder what is shown (Unicode Standard Annex #9)."""
+
+
+def show_controls(text: str) -> str:
+    """``text`` for a terminal, with every control character written visibly as an escape:
+    ESC is shown as ``\\x1b``, RIGHT-TO-LEFT OVERRIDE as ``\\u202e``."""
+    def shown(m: re.Match[str]) -> str:
+        code = ord(m.group(0))
+        return f"\\x{code:02x}" if code < 0x100 else f"\\u{code:04x}"
+
+    return _CONTROLS.sub(shown, text)
 
 
 def _clean(value: Any) -> Any:
@@ -244,6 +260,17 @@ def to_sarif(analysis: SystemAnalysis, findings: list[Finding], prefix: str = "s
     return json.dumps(log, indent=2, ensure_ascii=False) + "\n"
 
 
+_NOT_XML = re.compile("[^\t\n\r\u0020-\ud7ff\ue000-\ufffd\U00010000-\U0010ffff]")
+"""Characters XML 1.0 cannot carry, even escaped (the Char production, XML 1.0 section 2.2)."""
+
+
+def xml_text(text: str) -> str:
+    """``text`` with every character XML 1.0 cannot carry written visibly (ESC as ``\\x1b``), so a
+    control character in a spec cannot make the JUnit report unreadable."""
+    return _NOT_XML.sub(lambda m: f"\\x{ord(m.group(0)):02x}" if ord(m.group(0)) < 0x100
+                        else f"\\u{ord(m.group(0)):04x}", text)
+
+
 def _fails(f: Finding, fail_on: str) -> bool:
     return not f.waived and fail_on != "never" and SEVERITY_RANK[f.severity] <= SEVERITY_RANK[fail_on]
 
@@ -284,5 +311,9 @@ def to_junit(analysis: SystemAnalysis, findings: list[Finding], fail_on: str = "
     root = ET.Element("testsuites", name="specfold", tests=str(n), failures=str(failures), errors="0",
                       skipped=str(skipped))
     root.append(suite)
+    for el in root.iter():  # every text and attribute from a spec file, made fit for XML 1.0
+        el.text = xml_text(el.text) if el.text else el.text
+        for name, value in el.attrib.items():
+            el.set(name, xml_text(value))
     ET.indent(root)
     return '<?xml version="1.0" encoding="UTF-8"?>\n' + ET.tostring(root, encoding="unicode") + "\n"

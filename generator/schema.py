@@ -9,6 +9,7 @@ Format version 1.  ``specs/system.toml`` may say ``format = 1`` under ``[system]
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
 
 FORMAT_VERSION = 1
@@ -60,6 +61,28 @@ class Key:
 
 
 FAMILIES = ("butterworth", "bessel", "chebyshev1", "chebyshev2", "elliptic")
+
+# Bounds of the values a spec may hold.  Each is wide enough for any real system and narrow enough
+# that every figure of every command stays inside the float range (the boundary-value trials of
+# tests/fuzz.py run every command at each side of each bound).
+DB_LIMIT = 400.0
+"""Largest ratio in dB (SNR, rejection, stopband attenuation): the ideal SQNR of a 64-bit converter,
+the widest the format allows, is 6.02 x 64 + 1.76 = 387 dB (common practice: 6.02 N + 1.76 dB)."""
+OVER_FULL_SCALE_DB = 100.0
+"""Highest level above full scale (dBFS) for content outside the band or a tone."""
+LOSS_LIMIT_DB = 60.0
+"""Largest passband loss or ripple in dB: a band edge 60 dB down is no longer captured."""
+FINE_DB = 1e-4
+"""Finest flatness or ripple in dB (0.1 mdB, about 12 parts per million of amplitude); finer ones
+need orders and corners no filter design reaches, and their prototypes leave the float range."""
+GAIN_LIMIT_DB = 200.0
+"""Largest gain or attenuation, in dB either way (1e-10 to 1e10 V/V)."""
+MAX_PIXELS = 1_000_000
+"""Most pixels along one side of a sensor (line sensors have tens of thousands)."""
+MAX_RATIO = 2**32
+"""Largest clock divider or oversampling ratio (a 32-bit counter)."""
+MAX_CONVERTER_CHANNELS = 1_000_000
+"""Most inputs or outputs one converter may declare."""
 CHANNEL_KINDS = ("input", "output", "image")
 
 CHANNEL_KEYS: tuple[Key, ...] = (
@@ -82,16 +105,17 @@ CHANNEL_KEYS: tuple[Key, ...] = (
     Key("signal", "resolution", QUANTITY, "Smallest change that must be resolved (one LSB at most).",
         dims=(ENG,), example='"0.01 g"', kinds=("input", "output"), positive=True),
     Key("signal", "snr", QUANTITY, "Signal-to-noise ratio required in band, for a signal at `peak`.",
-        dims=("dB",), example='"80 dB"', kinds=("input", "output")),
+        dims=("dB",), example='"80 dB"', kinds=("input", "output"), minimum=0.0, maximum=DB_LIMIT),
     Key("signal", "flatness", QUANTITY, "Largest loss allowed anywhere in the band, relative to the "
-        "filter's peak gain (dB).",
-        dims=("dB",), default='"0.5 dB"', example='"0.1 dB"', kinds=("input", "output"), positive=True),
+        "filter's peak gain (dB).", dims=("dB",), default='"0.5 dB"', example='"0.1 dB"', kinds=("input", "output"),
+        minimum=FINE_DB, maximum=LOSS_LIMIT_DB),
     Key("signal", "out_of_band", QUANTITY, "Worst level of content above the band, sine-referenced dBFS.",
-        dims=("dBFS",), default='"0 dBFS"', example='"-20 dBFS"', kinds=("input",)),
+        dims=("dBFS",), default='"0 dBFS"', example='"-20 dBFS"', kinds=("input",), minimum=-DB_LIMIT,
+        maximum=OVER_FULL_SCALE_DB),
     Key("signal", "filtered_to_band", BOOL, "Data are digitally filtered to the band after sampling "
         "(earns processing gain).", default="false", example="true", kinds=("input",)),
     Key("signal", "image_rejection", QUANTITY, "Required suppression of every image below its tone.",
-        dims=("dB",), example='"60 dB"', kinds=("output",), positive=True),
+        dims=("dB",), example='"60 dB"', kinds=("output",), positive=True, maximum=DB_LIMIT),
     Key("signal", "limit", QUANTITY, "Largest amplitude the driven device accepts, in the engineering unit.",
         dims=(ENG,), example='"10 V"', kinds=("output",), positive=True),
     Key("signal", "detail", QUANTITY, "Finest spatial frequency that must be captured.",
@@ -105,7 +129,7 @@ CHANNEL_KEYS: tuple[Key, ...] = (
         "or in the engineering unit.", dims=("V", ENG, "V/√Hz", ENG_PER_RTHZ),
         example='"20 nV/√Hz"', kinds=("input",), minimum=0.0),
     Key("sensor", "pixels", INT_PAIR, "Pixels across and down (a line sensor has 1 row).",
-        example="[2048, 1536]", kinds=("image",), required=True, positive=True),
+        example="[2048, 1536]", kinds=("image",), required=True, positive=True, maximum=MAX_PIXELS),
     Key("sensor", "active_area", PAIR, "Width and height of the active area.", dims=("m",),
         example='["7.0656 mm", "5.2992 mm"]', kinds=("image",), required=True, positive=True),
     # [conversion]
@@ -120,7 +144,8 @@ CHANNEL_KEYS: tuple[Key, ...] = (
         "(unipolar); a full-scale sine has half its width as amplitude.", dims=("V",),
         example='"±10 V"', kinds=("input", "output")),
     Key("conversion", "gain", GAIN, "Gain between sensor and converter (or converter and actuator), "
-        "V/V or dB.", default="1", example='"20 dB"', positive=True, kinds=("input", "output")),
+        "V/V or dB.", default="1", example='"20 dB"', minimum=10 ** (-GAIN_LIMIT_DB / 20),
+        maximum=10 ** (GAIN_LIMIT_DB / 20), kinds=("input", "output")),
     Key("conversion", "jitter", QUANTITY, "Total rms sampling jitter at this channel; without it the "
         "converter's aperture jitter and its clock's jitter add as a root sum of squares.", dims=("s",),
         example='"50 ps"', minimum=0.0, kinds=("input", "output")),
@@ -137,18 +162,18 @@ CHANNEL_KEYS: tuple[Key, ...] = (
     Key("filter", "corner", QUANTITY, "Corner frequency: -3 dB point (butterworth, bessel), ripple-band "
         "edge (chebyshev1, elliptic), stopband edge (chebyshev2).", dims=("Hz",), example='"8 kHz"',
         positive=True, kinds=("input", "output")),
-    Key("filter", "ripple", QUANTITY, "Passband ripple (chebyshev1, elliptic).", dims=("dB",),
-        default='"0.1 dB"', example='"0.5 dB"', positive=True, kinds=("input", "output"),
-        families=("chebyshev1", "elliptic")),
+    Key("filter", "ripple", QUANTITY, "Passband ripple (chebyshev1, elliptic); an elliptic filter's "
+        "is below its stopband attenuation.", dims=("dB",), default='"0.1 dB"', example='"0.5 dB"',
+        minimum=FINE_DB, maximum=LOSS_LIMIT_DB, kinds=("input", "output"), families=("chebyshev1", "elliptic")),
     Key("filter", "stopband_attenuation", QUANTITY, "Stopband attenuation (chebyshev2, elliptic).",
-        dims=("dB",), default='"80 dB"', example='"80 dB"', positive=True, kinds=("input", "output"),
-        families=("chebyshev2", "elliptic")),
+        dims=("dB",), default='"80 dB"', example='"80 dB"', minimum=1.0, maximum=DB_LIMIT,
+        kinds=("input", "output"), families=("chebyshev2", "elliptic")),
     # [[interference]]
     Key("interference", "frequency", QUANTITY, "Frequency of a known tone outside the band.",
         dims=("Hz",), example='"50 kHz"', required=True, positive=True, kinds=("input",)),
     Key("interference", "level", QUANTITY, "Its level: dBFS, volts at the sensor output, or the "
         "engineering unit.", dims=("dBFS", "V", ENG), example='"-30 dBFS"', required=True,
-        kinds=("input",)),
+        kinds=("input",), minimum=-DB_LIMIT, maximum=OVER_FULL_SCALE_DB),
     Key("interference", "source", TEXT, "Where it comes from.", example='"inverter switching"',
         kinds=("input",)),
     # [safety]
@@ -198,7 +223,7 @@ SYSTEM_KEYS: tuple[Key, ...] = (
     Key("converters.*", "sampling", CHOICE, "All channels at one instant, or one after another.",
         choices=("simultaneous", "multiplexed"), default='"simultaneous"', example='"multiplexed"'),
     Key("converters.*", "channels", INT, "Number of inputs or outputs the converter has.",
-        example="16", minimum=1),
+        example="16", minimum=1, maximum=MAX_CONVERTER_CHANNELS),
     Key("converters.*", "clock", REF, "Clock the rate is derived from.", ref="clocks", example='"mclk"'),
     Key("converters.*", "jitter", QUANTITY, "Rms aperture jitter.", dims=("s",), example='"20 ps"',
         minimum=0.0),
@@ -208,19 +233,19 @@ SYSTEM_KEYS: tuple[Key, ...] = (
     Key("converters.*", "modulator_rate", QUANTITY, "Delta-sigma modulator rate.", dims=("Hz",),
         example='"6.144 MHz"', positive=True),
     Key("converters.*", "oversampling_ratios", INT_LIST, "Allowed delta-sigma oversampling ratios.",
-        example="[64, 128, 256]", positive=True),
+        example="[64, 128, 256]", positive=True, maximum=MAX_RATIO),
     Key("converters.*", "passband", FLOAT, "Delta-sigma digital filter passband edge, as a fraction of "
         "the output rate.", example="0.4535", positive=True, maximum=0.5),
     Key("converters.*", "stopband", FLOAT, "Delta-sigma digital filter stopband edge, as a fraction of "
         "the output rate.", example="0.5465", positive=True, maximum=1.0),
     Key("converters.*", "stopband_rejection", QUANTITY, "Delta-sigma digital filter stopband rejection.",
-        dims=("dB",), example='"110 dB"', positive=True),
+        dims=("dB",), example='"110 dB"', positive=True, maximum=DB_LIMIT),
     Key("clocks.*", "frequency", QUANTITY, "Clock frequency.", dims=("Hz",), required=True,
         example='"24.576 MHz"', positive=True),
     Key("clocks.*", "dividers", INT_LIST, "Allowed integer dividers.", example="[256, 512, 1024]",
-        positive=True),
+        positive=True, maximum=MAX_RATIO),
     Key("clocks.*", "divider_range", INT_PAIR, "Allowed dividers as an inclusive range.",
-        example="[16, 65536]", positive=True),
+        example="[16, 65536]", positive=True, maximum=MAX_RATIO),
     Key("clocks.*", "jitter", QUANTITY, "Rms clock jitter.", dims=("s",), example='"10 ps"', minimum=0.0),
     Key("links.*", "capacity", QUANTITY, "Raw capacity.", dims=("bit/s",), required=True,
         example='"1 Gbit/s"', positive=True),
@@ -254,9 +279,28 @@ def keys_of(table: str, keys: tuple[Key, ...] = CHANNEL_KEYS) -> dict[str, Key]:
     return {k.name: k for k in keys if k.table == table}
 
 
+def _bound_text(number: float, key: Key) -> str:
+    if key.kind == GAIN:
+        return f"{20 * math.log10(number):g} dB"
+    if key.kind in (INT, INT_PAIR, INT_LIST):
+        return f"{int(number):,}"
+    unit = key.dims[0] if key.dims and key.dims[0] in ("dB", "dBFS") else ""
+    return f"{number:g}{' ' + unit if unit else ''}"
+
+
+def range_text(key: Key) -> str:
+    """The bounds the loader enforces on a key, as the README shows them."""
+    low = f"> {_bound_text(0, key) if key.kind != GAIN else 0}" if key.positive else (
+        f"≥ {_bound_text(key.minimum, key)}" if key.minimum is not None else "")
+    if key.minimum is not None and key.maximum is not None and not key.positive:
+        return f"{_bound_text(key.minimum, key)} to {_bound_text(key.maximum, key)}"
+    high = f"≤ {_bound_text(key.maximum, key)}" if key.maximum is not None else ""
+    return ", ".join(part for part in (low, high) if part)
+
+
 def reference_table(keys: tuple[Key, ...]) -> str:
     """The Markdown key reference of the README, generated so it cannot drift from the loader."""
-    rows = ["| key | meaning | unit | default | example |", "|---|---|---|---|---|"]
+    rows = ["| key | meaning | unit | range | default | example |", "|---|---|---|---|---|---|"]
     for k in keys:
         table = k.table.replace(".*", ".ID")
         if k.table in ARRAY_TABLES:
@@ -276,6 +320,6 @@ def reference_table(keys: tuple[Key, ...]) -> str:
         scope = "" if k.table.endswith(".*") or k.table == "system" or len(k.kinds) == 3 else \
             f" ({', '.join(k.kinds)} only)"
         req = " Required." if k.required else ""
-        rows.append(f"| `{where}` | {k.meaning}{scope}{req} | {unit} | {k.default and f'`{k.default}`'} "
-                    f"| `{k.example}` |")
+        rows.append(f"| `{where}` | {k.meaning}{scope}{req} | {unit} | {range_text(k)} "
+                    f"| {k.default and f'`{k.default}`'} | `{k.example}` |")
     return "\n".join(rows)

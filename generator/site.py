@@ -50,6 +50,7 @@ from __future__ import annotations
 
 import ctypes
 import gc
+import hashlib
 import importlib.resources
 import multiprocessing
 import multiprocessing.pool
@@ -85,8 +86,8 @@ from .cache import (
     write_shared,
 )
 from .dsp import memo
-from .errors import SpecError
-from .files import carry, inside, regular_file, walk, write
+from .errors import SpecError, os_error_text
+from .files import alive, carry, halt_point, inside, regular_file, walk, write
 from .load import load_spec
 from .propose import flagged_channels, propose
 from .report import to_json
@@ -258,52 +259,90 @@ def check_output(output: Path, specs: Path) -> None:
 
 
 def _remove_tree(folder: Path) -> None:
-    """Delete a folder this tool made, its marker last, so a half-deleted one is still recognised.
+    """Delete a folder this tool made, its site marker last, so a half-deleted one is still
+    recognised (and removed) by the next build.
 
     ``shutil.rmtree`` removes symbolic links inside as links and never descends through them.
     """
     for entry in sorted(folder.iterdir()):
-        if entry.name in (MARKER, BUILDING_MARKER):
+        if entry.name == MARKER:
             continue
         if entry.is_dir() and not entry.is_symlink():
             shutil.rmtree(entry)
         else:
             entry.unlink()
-    shutil.rmtree(folder)
+    halt_point("site")  # the old site emptied but for its marker
+    (folder / MARKER).unlink(missing_ok=True)
+    folder.rmdir()
 
 
-def _alive(pid: int) -> bool:
-    try:
-        os.kill(pid, 0)
-    except ProcessLookupError:
-        return False
-    except (PermissionError, OSError):
-        return True  # someone else's process: leave its folder alone
-    return True
+def sibling_prefix(out: Path) -> str:
+    """``.NAME.``: how the temporary siblings of the output folder ``out`` begin.
+
+    A name near the file system's 255-byte limit leaves no room for ``.NAME.building-XXXXXXXX``; it
+    is then shortened to its first 100 bytes and a digest of the whole name, still unique to it.
+    """
+    name = out.name
+    if len(name.encode("utf-8")) <= 200:
+        return f".{name}."
+    head = name.encode("utf-8")[:100].decode("utf-8", "ignore")
+    return f".{head}~{hashlib.sha256(name.encode('utf-8')).hexdigest()[:16]}."
 
 
 def _clean_leftovers(out: Path) -> None:
     """Remove temporary siblings of ``out`` that a killed build left behind, and only those.
 
-    A ``.NAME.building-*`` folder counts when it carries the building marker and the process named
-    in it is gone; a ``.NAME.old-*`` folder when it carries the site marker (the old site is
-    deleted marker last).  Anything else with a similar name is left as it is.
+    A ``.NAME.building-*`` folder counts when it is empty (killed before its marker was written),
+    when it carries the building marker and the process named in it is gone, or when it carries the
+    site marker alone (complete, killed just before its swap);
+    a ``.NAME.old-*`` folder when it carries the site marker (the old site is deleted marker last),
+    and it is put back when ``out`` itself is missing (killed between the two renames of a swap).
+    Anything else with a similar name is left as it is.  Runs under :func:`output_lock`, so no other
+    build of this output is running.
     """
-    prefix = f".{out.name}."
+    prefix = sibling_prefix(out)
     for entry in sorted(out.parent.iterdir()):
         if not entry.name.startswith(prefix) or entry.is_symlink() or not entry.is_dir():
             continue
         kind = entry.name[len(prefix):].split("-", 1)[0]
-        if kind == "building" and regular_file(entry / BUILDING_MARKER):
+        if kind == "building" and not any(entry.iterdir()):
+            entry.rmdir()  # made, and killed before its marker: empty, so nothing of anyone's is lost
+        elif kind == "building" and regular_file(entry / BUILDING_MARKER):
             text = (entry / BUILDING_MARKER).read_text(encoding="utf-8", errors="replace").strip()
-            if text.isdigit() and _alive(int(text)):
+            if text.isdigit() and alive(int(text)):
                 continue
             shutil.rmtree(entry, ignore_errors=True)
-        elif kind == "old" and regular_file(entry / MARKER):
-            if not out.exists() and not out.is_symlink():
+        elif kind in ("building", "old") and regular_file(entry / MARKER):
+            if kind == "old" and not out.exists() and not out.is_symlink():
                 os.replace(entry, out)  # killed between the two renames of a swap: the old site comes back
                 continue
             shutil.rmtree(entry, ignore_errors=True)
+
+
+@contextmanager
+def output_lock(out: Path) -> Iterator[None]:
+    """Hold the build lock of the output folder ``out`` (resolved), or refuse with a SpecError.
+
+    The lock is an advisory ``flock`` on the folder that holds ``out``: two builds into one output
+    (a ``serve`` and a ``build``, two CI jobs) are serialised, and the second says so instead of
+    racing the first for the swap.  Nothing is written for it, so a killed build leaves no lock
+    behind: the kernel releases it with the process.  Where ``flock`` is missing it is a no-op.
+    """
+    try:
+        import fcntl
+    except ImportError:  # not POSIX: no lock, as before
+        yield
+        return
+    fd = os.open(out.parent, os.O_RDONLY | getattr(os, "O_DIRECTORY", 0))
+    try:
+        try:
+            fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
+        except BlockingIOError:
+            raise SpecError(f"another specfold build is writing into {out.parent} right now; run this one "
+                            "again when it has finished") from None
+        yield
+    finally:
+        os.close(fd)  # releases the lock
 
 
 # ---------------------------------------------------------------------------------------------
@@ -447,6 +486,7 @@ def _fill(tmp: Path, analysis: SystemAnalysis, findings: list[Finding], env: jin
         for rel in SHARED_PAGES:
             write(tmp, rel, shared_page(rel, ctx, env, sections))
             tick(1, rel)
+        halt_point("site")  # the site half written
         if pending is None:
             for i in todo:
                 tick(1, _render_one(i, job))
@@ -506,15 +546,18 @@ def _swap(tmp: Path, out: Path) -> None:
     for name in KEPT:
         if regular_file(out / name) and not (tmp / name).exists():
             shutil.copy2(out / name, tmp / name)
-    aside = Path(tempfile.mkdtemp(prefix=f".{out.name}.old-", dir=out.parent))
+    aside = Path(tempfile.mkdtemp(prefix=f"{sibling_prefix(out)}old-", dir=out.parent))
     aside.rmdir()
     os.replace(out, aside)
+    halt_point("site")  # the old site aside, no site at the output's name
     try:
         os.replace(tmp, out)
     except BaseException:
         os.replace(aside, out)
         raise
-    _remove_tree(aside)
+    halt_point("site")  # the new site in place, the old one aside
+    with suppress(OSError):  # the new site is in place; the next build removes what is left (it keeps the marker)
+        _remove_tree(aside)
 
 
 def write_site(analysis: SystemAnalysis, findings: list[Finding], output: Path, specs: Path,
@@ -534,14 +577,21 @@ def write_site(analysis: SystemAnalysis, findings: list[Finding], output: Path, 
     env = environment()
     out = output.resolve()
     _clean_leftovers(out)
-    tmp = Path(tempfile.mkdtemp(prefix=f".{out.name}.building-", dir=out.parent))
+    tmp = Path(tempfile.mkdtemp(prefix=f"{sibling_prefix(out)}building-", dir=out.parent))
     try:
+        halt_point("site")  # the temporary folder made, still empty
         (tmp / BUILDING_MARKER).write_text(f"{os.getpid()}\n", encoding="utf-8")
+        halt_point("site")  # marked as this process's
         count, keys, listing = _fill(tmp, analysis, findings, env, progress, reuse, figures, cached, per_channel)
+        halt_point("site")  # every page written, the site marker last
         if reuse is not None and reuse.inputs is not None:
             write(tmp, MANIFEST, manifest_text(reuse, keys, count, len(analysis.channels), findings, listing or {}))
+            halt_point("site")  # the manifest written
+        # the published site never carries the building marker: it goes before the swap, and a
+        # complete folder killed right here is known by its site marker alone (_clean_leftovers)
+        (tmp / BUILDING_MARKER).unlink()
+        halt_point("site")
         _swap(tmp, out)
-        (out / BUILDING_MARKER).unlink()
     except BaseException:
         shutil.rmtree(tmp, ignore_errors=True)
         raise
@@ -602,7 +652,25 @@ def build(specs: Path | str, output: Path | str, progress: Progress | None = Non
     (the new site still gets a manifest and a cache for the next build).
     """
     specs_path, out_path = Path(specs), Path(output)
-    check_output(out_path, specs_path)  # refuse early, before any work
+    with _located(out_path):
+        check_output(out_path, specs_path)  # refuse early, before any work
+        with output_lock(out_path.resolve()):
+            return _build(specs_path, out_path, progress, incremental)
+
+
+@contextmanager
+def _located(output: Path) -> Iterator[None]:
+    """A file-system error while building (a full disk, a read-only or immutable folder, a name too
+    long) as one sentence about the output folder: every such failure comes before the swap, so
+    the previous site is still there."""
+    try:
+        yield
+    except OSError as exc:
+        raise SpecError(f"cannot build into {output}: {os_error_text(exc)}; the previous site, if any, "
+                        "is as it was") from None
+
+
+def _build(specs_path: Path, out_path: Path, progress: Progress | None, incremental: bool) -> BuildSummary:
     _clean_leftovers(out_path.resolve())  # first: a site a killed build had moved aside comes back, and is reused
     tool, key = tool_key(TEMPLATES, plotly_bundle()), signing_key()
     previous = read_manifest(out_path) if incremental and regular_file(out_path / MARKER) else None

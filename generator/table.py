@@ -29,7 +29,6 @@ import difflib
 import io
 import json
 import math
-import os
 import re
 import tomllib
 from collections.abc import Iterable, Mapping
@@ -40,6 +39,7 @@ from typing import Any
 from . import schema
 from .analysis import FIGURES, SystemAnalysis
 from .errors import SpecError, SpecErrors
+from .files import clean_parts, write_files
 from .load import CHANNEL_DIR, convert, parse_toml
 from .quantities import Unit, parse_quantity, parse_unit
 from .rules import Finding, by_channel, worst_status
@@ -396,7 +396,7 @@ def read_csv(path: Path) -> tuple[list[str], list[tuple[int, list[str]]]]:
     delimiter = max((",", ";", "\t"), key=first.count)
     reader = csv.reader(io.StringIO(text, newline=""), delimiter=delimiter)
     try:
-        header = next(reader)
+        header = [unguard_cell(cell) for cell in next(reader)]
     except StopIteration:
         raise SpecError("the table is empty; its first row names the columns", str(path), 1) from None
     rows: list[tuple[int, list[str]]] = []
@@ -408,7 +408,7 @@ def read_csv(path: Path) -> tuple[list[str], list[tuple[int, list[str]]]]:
             except StopIteration:
                 break
             if any(cell.strip() for cell in row):
-                rows.append((start, row))
+                rows.append((start, [unguard_cell(cell) for cell in row]))
     except csv.Error as exc:
         raise SpecError(f"not a readable CSV table: {exc}", str(path), reader.line_num) from None
     return header, rows
@@ -613,16 +613,13 @@ def write_planned(specs: Path | str, planned: Iterable[Planned], force: bool = F
     if refused:
         raise SpecErrors(SpecError(f"{p.rel} exists and differs from row {p.row}; --force replaces it",
                                    p.rel) for p in refused)
-    written = []
-    for p in items:
-        if p.state == "unchanged":
-            continue
-        target = root / p.rel
-        target.parent.mkdir(parents=True, exist_ok=True)
-        tmp = target.with_name(f".{target.name}.importing")
-        tmp.write_text(p.text, encoding="utf-8", newline="\n")
-        os.replace(tmp, target)
-        written.append(p)
+    written = [p for p in items if p.state != "unchanged"]
+    clean_parts(root / CHANNEL_DIR)  # what a killed import left, even when nothing is left to write
+    for p in written:
+        (root / p.rel).parent.mkdir(parents=True, exist_ok=True)
+    # all or nothing: every file is staged (written and synced) before the first is put in place,
+    # and a file planned as new is never put over one that appeared since
+    write_files([(root / p.rel, p.text, p.state == "replace") for p in written], "import")
     return written
 
 
@@ -707,13 +704,45 @@ def export_table(analysis: SystemAnalysis, findings: list[Finding]) -> tuple[lis
     return columns, [{c: row.get(c) for c in columns} for row in rows]
 
 
+FORMULA_START = ("=", "+", "-", "@", "\t", "\r", "\0")
+"""First characters that make a spreadsheet read a cell as a formula.  OWASP's CSV Injection page
+lists = + - @ tab and carriage return, to be neutralised by a leading apostrophe, and advises quoting
+every cell (owasp.org/www-community/attacks/CSV_Injection, from memory); OWASP ASVS 5.0
+requirement 1.2.10 adds the null character."""
+_PLAIN_NUMBER = re.compile(r"[+-]?(?:[0-9]+\.?[0-9]*|\.[0-9]+)(?:[eE][+-]?[0-9]+)?")
+
+
+def guard_cell(text: str) -> str:
+    """A cell as export writes it: one starting like a formula (and not a plain number such as
+    ``-3.5``, which no spreadsheet runs) gets a leading apostrophe, the spreadsheets' own mark for
+    text; so does one already starting with an apostrophe, so :func:`unguard_cell` undoes exactly this."""
+    if text[:1] == "'" or (text[:1] in FORMULA_START and text and not _PLAIN_NUMBER.fullmatch(text)):
+        return "'" + text
+    return text
+
+
+def unguard_cell(text: str) -> str:
+    """A cell as import reads it: the apostrophe :func:`guard_cell` adds (or a spreadsheet kept) is dropped."""
+    if text[:1] == "'" and text[1:2] and text[1:2] in (*FORMULA_START, "'"):
+        return text[1:]
+    return text
+
+
 def to_csv(columns: list[str], rows: list[dict[str, Any]]) -> str:
+    """The table as CSV: every text cell quoted and guarded against formula injection
+    (:func:`guard_cell`), numbers written bare so that a spreadsheet reads them as numbers."""
     buf = io.StringIO()
-    writer = csv.writer(buf, lineterminator="\n")
-    writer.writerow(columns)
+    writer = csv.writer(buf, lineterminator="\n", quoting=csv.QUOTE_NONNUMERIC)
+    writer.writerow([guard_cell(c) for c in columns])
     for row in rows:
-        writer.writerow(["" if row[c] is None else _text(row[c]) for c in columns])
+        writer.writerow([_cell(row[c]) for c in columns])
     return buf.getvalue()
+
+
+def _cell(value: object) -> str | float:
+    if isinstance(value, float) and not isinstance(value, bool):
+        return value
+    return "" if value is None else guard_cell(_text(value))
 
 
 def to_json_table(columns: list[str], rows: list[dict[str, Any]], ascii_only: bool = False) -> str:

@@ -89,15 +89,17 @@ def test_locate_keys_finds_tables_arrays_and_dotted_keys() -> None:
     assert pos["interference.1.signal.peak"] == (20, 1)
 
 
-def test_channel_files_come_in_path_order_without_links(tmp_path: Path) -> None:
+def test_channel_files_come_in_path_order_with_links_listed_not_followed(tmp_path: Path) -> None:
     # Reference: pathlib's own ordering (sorted() on the paths), which the listing must keep while
     # comparing plain strings; folders whose names sort differently as strings and as parts
-    # ("a-b" < "a/" as text, "a" < "a-b" as parts) and a symbolic link that must not be listed.
+    # ("a-b" < "a/" as text, "a" < "a-b" as parts).  Links are listed (the loader refuses each by
+    # name) but never followed: the folder behind a linked folder is not walked.
     channels = tmp_path / "channels"
     for rel in ("a-b/X.md", "a/X.md", "a/b/Y.md", "A.md", "b.md", "a.b/Z.md", "notes.txt"):
         (channels / rel).parent.mkdir(parents=True, exist_ok=True)
         (channels / rel).write_text("x", encoding="utf-8")
     (channels / "linked.md").symlink_to(channels / "b.md")
+    (channels / "linked-folder").symlink_to(channels / "a", target_is_directory=True)
     listed = channel_files(tmp_path)
-    expected = sorted(p for p in channels.rglob("*.md") if not p.is_symlink())
-    assert listed == expected and len(listed) == 6
+    expected = sorted([*channels.rglob("*.md"), channels / "linked-folder"])
+    assert listed == expected and len(listed) == 8

@@ -52,3 +52,15 @@ def test_values_beyond_any_physical_meaning_are_refused(minimal_tree: Path, valu
     assert main(["check", str(minimal_tree)]) == EXIT_BAD_INPUT
     err = capsys.readouterr().err
     assert "outside what a spec can mean" in err and "Traceback" not in err
+
+
+def test_an_integer_of_more_than_4300_digits_is_an_input_error(minimal_tree: Path,
+                                                                 capsys: pytest.CaptureFixture[str]) -> None:
+    # Python refuses to read an integer of more than 4,300 digits (sys.get_int_max_str_digits(), a
+    # guard against quadratic conversion): tomllib let that ValueError out, with no position
+    acc = minimal_tree / "channels" / "ACC-1.md"
+    acc.write_text(acc.read_text().replace('converter = "ds"', 'converter = "ds"\nbits = 1' + "0" * 4300))
+    assert main(["check", str(minimal_tree)]) == EXIT_BAD_INPUT
+    err = capsys.readouterr().err
+    line = acc.read_text().split("\n").index("bits = 1" + "0" * 4300) + 1
+    assert f"channels/ACC-1.md:{line}: a number of more than 4,300 digits" in err and "Traceback" not in err

@@ -1,13 +1,16 @@
 """The output folder: what the builder refuses, links it never follows, and builds killed mid-way.
 
 A build writes into a temporary sibling ``.NAME.building-*`` (carrying ``.specfold-building``
-with its process id), swaps it in for the old site and deletes the old one marker last.  So a
-SIGKILL at any moment leaves either the old site or the new one complete at ``NAME``, and what a
-killed build leaves beside it is recognisable and removed by the next build.
+with its process id until it is complete), swaps it in for the old site and deletes the old one
+marker last.  So a build ended at any step leaves the old site or the new one complete, and what it
+leaves beside it is recognisable and removed by the next build.  The tests stop builds at each of
+the site writer's halt points in turn (``SPECFOLD_HALT_AT=site:N``), never at a moment chosen by a
+clock.
 """
 
 from __future__ import annotations
 
+import errno
 import hashlib
 import json
 import os
@@ -16,16 +19,18 @@ import signal
 import subprocess
 import sys
 import time
+from collections.abc import Callable
 from pathlib import Path
 
 import pytest
 
-from generator import cache, site
+from generator import cache, files, site
 from generator.cli import EXIT_BAD_INPUT, main
 from generator.errors import SpecError
 from generator.files import write as write_inside
 
 from .conftest import DEMO, MINIMAL, ROOT
+from .test_writers import halted
 
 
 def published(files: dict[str, str]) -> dict[str, str]:
@@ -38,8 +43,8 @@ def published(files: dict[str, str]) -> dict[str, str]:
 def snapshot(folder: Path) -> dict[str, str]:
     """Relative path -> sha256 of every file under ``folder`` (links are not followed)."""
     out: dict[str, str] = {}
-    for dirpath, _dirs, files in os.walk(folder):
-        for name in files:
+    for dirpath, _dirs, names in os.walk(folder):
+        for name in names:
             path = Path(dirpath) / name
             out[path.relative_to(folder).as_posix()] = hashlib.sha256(path.read_bytes()).hexdigest()
     return out
@@ -194,59 +199,81 @@ def _big_tree(dest: Path, channels: int = 300) -> Path:
     return dest
 
 
-STARTUP_KILL = 0.05
-"""Seconds: a kill while Python is still importing."""
-WRITING_KILLS = (0.15, 0.5, 0.85)
-"""Fractions of the page-writing phase (timed on a first build) at which the later kills land."""
+SITE_STEPS = 9
+"""Halt points a build that replaces a site passes (generator.site): folder made, marked, half the
+pages, all pages, manifest, unmarked, old site aside, new site in, old site emptied but its marker."""
 
 
-def _run(command: list[str], out: Path, kill_at: float | None = None) -> tuple[float, float]:
-    """Run a build; with ``kill_at``, SIGKILL it that many seconds after its temporary folder appears
-    (a negative value: that many seconds after the start).  Returns (temporary folder seen, end),
-    times in seconds from the start, -1 for a folder never seen."""
-    start = time.monotonic()
-    child = subprocess.Popen(command, cwd=ROOT, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE)
-    appeared = -1.0
-    before = set(leftovers(out))  # a killed build's folder is not this one's
-    while child.poll() is None:
-        now = time.monotonic() - start
-        if appeared < 0 and any(".building-" in name for name in set(leftovers(out)) - before):
-            appeared = now
-        if kill_at is not None and ((kill_at < 0 and now >= -kill_at) or (0 <= appeared <= now - kill_at)):
-            child.send_signal(signal.SIGKILL)
-            child.wait()
-            return appeared, now
-        time.sleep(0.005)
-    assert child.stderr is not None
-    assert child.returncode == 0, child.stderr.read().decode()
-    return appeared, time.monotonic() - start  # also when a kill came too late: the build had finished
+def _halted_build(command: list[str], step: int | None) -> int:
+    env = {**os.environ, "PYTHONPATH": str(ROOT)}
+    if step is not None:
+        env[files.HALT_ENV] = f"site:{step}"
+    proc = subprocess.run(command, cwd=ROOT, env=env, capture_output=True, text=True, timeout=600)
+    assert step is not None or proc.returncode == 0, proc.stderr
+    return proc.returncode
 
 
-def test_a_build_killed_at_any_moment_leaves_the_previous_site(tmp_path: Path) -> None:
+def _every_build_step(specs: Path, out: Path, run: Callable[[list[str], int | None], int]) -> int:
+    """Build ``specs`` into ``out`` (which holds another site), stopped at step 1, 2, ... until a build
+    completes; after each stop the site at ``out`` is the old one whole (or, stopped between the two
+    renames of the swap, the old one whole beside it, put back by the next build), never a mix, and
+    never carries the building marker.  Returns the number of stops."""
+    previous = snapshot(out)
+    pristine = out.parent / "pristine"  # a sibling not named like the site's own temporary folders
+    shutil.copytree(out, pristine, symlinks=True)
+    command = [sys.executable, "-m", "generator", "build", str(specs), "-o", str(out)]
+    step = 1
+    while (code := run(command, step)) == files.HALT_EXIT:
+        left = leftovers(out)
+        if out.exists():
+            now = snapshot(out)
+            assert now == previous or (published(now) != published(previous) and _sealed(out)), f"step {step}"
+            assert site.BUILDING_MARKER not in now, f"step {step}: the building marker is in the site"
+            if now != previous:  # stopped after the swap: the old site back, so the next step has work
+                shutil.rmtree(out)
+                shutil.copytree(pristine, out, symlinks=True)
+        else:  # between the two renames: the old site whole, aside (the next build puts it back)
+            aside = [name for name in left if ".old-" in name]
+            assert len(aside) == 1 and snapshot(out.parent / aside[0]) == previous, f"step {step}"
+        step += 1
+    assert code == 0
+    assert leftovers(out) == []  # the completed build cleared what each stopped one left
+    assert _sealed(out)
+    return step - 1
+
+
+def _edited(specs: Path) -> None:
+    """An edit that changes a channel page, the shared pages and spec.json."""
+    acc = specs / "channels" / "ACC-1.md"
+    if not acc.exists():
+        acc = sorted((specs / "channels").glob("*.md"))[0]
+    acc.write_text(acc.read_text(encoding="utf-8").replace('title = "', 'title = "Edited: ', 1), encoding="utf-8")
+
+
+def test_a_build_stopped_at_every_step_leaves_a_whole_site(tmp_path: Path) -> None:
+    specs = tmp_path / "specs"
+    shutil.copytree(MINIMAL, specs)
+    out = tmp_path / "site"
+    site.build(specs, out)
+    _edited(specs)
+    expected = tmp_path / "expected"
+    site.build(specs, expected)
+
+    def forked(command: list[str], step: int | None) -> int:
+        return halted(command[3:], f"site:{step}" if step is not None else None)
+
+    assert _every_build_step(specs, out, forked) == SITE_STEPS
+    assert published(snapshot(out)) == published(snapshot(expected))
+
+
+@pytest.mark.slow
+def test_a_large_build_stopped_at_every_step_leaves_a_whole_site(tmp_path: Path) -> None:
+    # 300 channels: pages rendered by forked workers, spec.json and the cache by a side worker
     specs = _big_tree(tmp_path / "specs")
     out = tmp_path / "site"
-    # --fresh: every page is written even when nothing changed, so a kill can land mid-write
-    command = [sys.executable, "-m", "generator", "build", str(specs), "-o", str(out), "--fresh"]
-    appeared, total = _run(command, out)  # the first site, timed
-    previous = snapshot(out)
-    assert len(previous) > 300
-    assert 0 < appeared < total
-    writing = total - appeared
-    mid_build = 0
-    for kill_at in (-STARTUP_KILL, *(f * writing for f in WRITING_KILLS)):
-        _run(command, out, kill_at)
-        left = leftovers(out)
-        print(f"kill at {kill_at:+.2f} s (writing takes {writing:.2f} s): left {left}")
-        mid_build += any(".building-" in name for name in left)  # killed while pages were being written
-        # the old site whole, or (a kill after the swap, or too late) a whole new one: the same pages,
-        # and a cache whose every file is the one its manifest seals
-        now = snapshot(out)
-        assert now == previous or (published(now) == published(previous) and _sealed(out)), \
-            f"killed at {kill_at:.2f} s"
-    assert mid_build >= 2, "too few kills landed while a build was writing; the test proved little"
-    _run(command, out)
-    assert published(snapshot(out)) == published(previous) and _sealed(out)  # a full build again
-    assert leftovers(out) == []  # the next build cleared what the killed ones left
+    assert _halted_build([sys.executable, "-m", "generator", "build", str(specs), "-o", str(out)], None) == 0
+    _edited(specs)
+    assert _every_build_step(specs, out, _halted_build) == SITE_STEPS
 
 
 def test_a_writer_never_makes_a_removed_build_folder_again(tmp_path: Path) -> None:
@@ -338,3 +365,106 @@ def test_the_writer_refuses_a_path_out_of_the_site(tmp_path: Path, rel: str) -> 
     with pytest.raises(SpecError, match="outside the site folder"):
         write_inside(root, rel, "x")
     assert not (tmp_path / "escape.html").exists()
+
+
+# ---------------------------------------------------------------------------------------------
+# Two builds into one output, and what killed builds leave
+# ---------------------------------------------------------------------------------------------
+
+
+def test_a_second_build_into_the_same_output_is_refused_while_one_runs(tmp_path: Path,
+                                                                         capsys: pytest.CaptureFixture[str]) -> None:
+    out = tmp_path / "site"
+    site.build(MINIMAL, out)
+    before = snapshot(out)
+    with site.output_lock(out.resolve()):  # as a build in another process holds it
+        with pytest.raises(SpecError, match="another specfold build is writing"):
+            site.build(MINIMAL, out, incremental=False)
+        assert main(["build", str(MINIMAL), "-o", str(out), "--fresh"]) == EXIT_BAD_INPUT
+    err = capsys.readouterr().err
+    assert "another specfold build is writing into" in err and "Traceback" not in err
+    assert snapshot(out) == before and leftovers(out) == []
+    site.build(MINIMAL, out, incremental=False)  # the lock is gone with the holder
+    assert published(snapshot(out)) == published(before)
+
+
+def test_leftovers_a_killed_swap_can_leave_are_all_recognised(tmp_path: Path) -> None:
+    out = tmp_path / "site"
+    site.build(MINIMAL, out)
+    # an old site emptied down to its marker (killed while it was being deleted)
+    emptied = tmp_path / ".site.old-emptied"
+    emptied.mkdir()
+    (emptied / site.MARKER).write_text(site.MARKER_TEXT, encoding="utf-8")
+    # a complete new site unmarked as building and not yet swapped in
+    complete = tmp_path / ".site.building-complete"
+    shutil.copytree(out, complete)
+    # a folder made and never marked
+    (tmp_path / ".site.building-empty").mkdir()
+    # an older specfold's published site that kept the building marker of a dead process
+    (out / site.BUILDING_MARKER).write_text(f"{_dead_pid()}\n", encoding="utf-8")
+    site.build(MINIMAL, out, incremental=False)
+    assert leftovers(out) == [] and not (out / site.BUILDING_MARKER).exists()
+
+
+@pytest.mark.parametrize("length", [240, 255])
+def test_an_output_name_near_the_name_limit(length: int, tmp_path: Path) -> None:
+    # the temporary siblings would need ".NAME.building-XXXXXXXX", over 255 bytes: they are named
+    # by a digest of the name instead, and still recognised as this output's
+    out = tmp_path / ("s" * length)
+    site.build(MINIMAL, out)
+    assert (out / "index.html").is_file()
+    prefix = site.sibling_prefix(out.resolve())
+    assert len(f"{prefix}building-12345678".encode()) <= 255
+    (tmp_path / f"{prefix}old-x").mkdir()
+    (tmp_path / f"{prefix}old-x" / site.MARKER).write_text(site.MARKER_TEXT, encoding="utf-8")
+    site.build(MINIMAL, out, incremental=False)
+    assert sorted(p.name for p in tmp_path.iterdir()) == [out.name]
+
+
+# ---------------------------------------------------------------------------------------------
+# File-system errors: one sentence, exit 2, the old site intact
+# ---------------------------------------------------------------------------------------------
+
+
+@pytest.mark.parametrize(("where", "err", "words"), [
+    ("mkdtemp", errno.EROFS, "read-only"),          # a read-only file system
+    ("mkdtemp", errno.EACCES, "permission denied"),  # a folder not writable
+    ("replace", errno.EPERM, "not permitted"),       # an immutable output folder (chattr +i)
+    ("write", errno.ENOSPC, "no space left"),        # the disk fills while pages are written
+    ("write", errno.EDQUOT, "quota"),
+])
+def test_file_system_errors_are_one_sentence_and_leave_the_old_site(
+        where: str, err: int, words: str, tmp_path: Path, monkeypatch: pytest.MonkeyPatch,
+        capsys: pytest.CaptureFixture[str]) -> None:
+    out = tmp_path / "site"
+    site.build(MINIMAL, out)
+    before = snapshot(out)
+    failure = OSError(err, os.strerror(err), str(tmp_path))
+    if where == "mkdtemp":
+        def mkdtemp(*args: object, **kwargs: object) -> str:
+            raise failure
+        monkeypatch.setattr(site.tempfile, "mkdtemp", mkdtemp)
+    elif where == "replace":
+        real_replace = os.replace
+
+        def replace(src: object, dst: object) -> None:
+            if Path(str(src)) == out.resolve():  # moving the old site aside
+                raise failure
+            real_replace(src, dst)  # type: ignore[arg-type]
+        monkeypatch.setattr(site.os, "replace", replace)
+    else:
+        real_write = site.write
+        count = [0]
+
+        def write(root: Path, rel: str, data: str | bytes) -> None:
+            count[0] += 1
+            if count[0] > 3:
+                raise failure
+            real_write(root, rel, data)
+        monkeypatch.setattr(site, "write", write)
+    code = main(["build", str(MINIMAL), "-o", str(out), "--fresh"])
+    stderr = capsys.readouterr().err
+    assert code == EXIT_BAD_INPUT, stderr
+    assert stderr.count("\n") == 1 and f"cannot build into {out}" in stderr and words in stderr, stderr
+    assert "previous site" in stderr and "Traceback" not in stderr
+    assert snapshot(out) == before and leftovers(out) == []
