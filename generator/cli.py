@@ -27,14 +27,14 @@ from pathlib import Path
 from . import __version__
 from . import diff as spec_diff
 from . import propose as proposing
-from .analysis import SystemAnalysis, analyze
 from .dsp.filters import Stage
+from .edit import edit_header, file_edits
 from .errors import BUG, ENVIRONMENT_ERRNOS, SpecError, SpecErrors, bug_summary, os_error_text
 from .files import write_files
 from .load import load_spec
 from .quantities import format_quantity
 from .report import counts, show_controls, to_json, to_junit, to_sarif, to_text
-from .rules import SEVERITY_RANK, Finding, all_rules, run_rules
+from .rules import SEVERITY_RANK, Finding, all_rules
 
 EXIT_OK = 0
 EXIT_FINDINGS = 1
@@ -64,6 +64,8 @@ class _Parser(argparse.ArgumentParser):
 
 
 TRACEBACK_HELP = "on an internal error (exit 3), print the full traceback for the bug report"
+CACHE_HELP = ("build cache folder (default: $SPECFOLD_CACHE, else .specfold-cache beside the spec folder; "
+              "'off': none); safe to delete at any time")
 
 
 def _parser() -> argparse.ArgumentParser:
@@ -78,6 +80,7 @@ def _parser() -> argparse.ArgumentParser:
                        help="report format: text, the JSON contract, JUnit XML or SARIF 2.1.0")
     check.add_argument("--fail-on", choices=("error", "warning", "never"), default="error",
                        help="lowest severity that makes the exit code 1 (default: error)")
+    check.add_argument("--cache", metavar="DIR", default=None, help=CACHE_HELP)
 
     diff = sub.add_parser("diff", help="compare two spec trees (folders or git revisions)")
     diff.add_argument("base", help="a spec folder, a git revision (its --specs folder), or REV:path")
@@ -91,7 +94,8 @@ def _parser() -> argparse.ArgumentParser:
     build.add_argument("-o", "--output", default=DEFAULT_OUTPUT,
                        help="site folder (default: output); replaced as a whole on success")
     build.add_argument("--fresh", action="store_true",
-                       help="render every page again instead of reusing unchanged ones from the current site")
+                       help="ignore the build cache: load, check and render everything again (and refill the cache)")
+    build.add_argument("--cache", metavar="DIR", default=None, help=CACHE_HELP)
 
     prop = sub.add_parser("propose", help="the least costly compliant rate and filter per channel")
     prop.add_argument("targets", nargs="*", metavar="[SPECS] [ID]",
@@ -134,10 +138,6 @@ def _parser() -> argparse.ArgumentParser:
     return p
 
 
-def _load(specs: str) -> SystemAnalysis:
-    return analyze(load_spec(Path(specs)))
-
-
 def fails(findings: Sequence[Finding], fail_on: str) -> bool:
     """Whether any unwaived finding is at or above the ``fail_on`` severity."""
     if fail_on == "never":
@@ -175,16 +175,21 @@ def _write(text: str, ascii_text: Callable[[], str] | None = None, escaped: bool
 
 
 def _cmd_check(args: argparse.Namespace) -> int:
-    analysis = _load(args.specs)
-    findings = run_rules(analysis)
+    from .build.pipeline import channel_store, check, keep
+
+    store = channel_store(Path(args.specs), args.cache)
+    checked = check(args.specs, store)
+    analysis, findings = checked.analysis, checked.findings
     if args.format == "json":
-        _write(to_json(analysis, findings), lambda: to_json(analysis, findings, ascii_only=True), escaped=True)
+        _write(to_json(analysis, findings, memo=checked.figures),
+               lambda: to_json(analysis, findings, ascii_only=True), escaped=True)
     elif args.format == "junit":
         _write(to_junit(analysis, findings, args.fail_on, _repo_prefix(args.specs)), escaped=True)
     elif args.format == "sarif":
         _write(to_sarif(analysis, findings, _repo_prefix(args.specs)), escaped=True)
     else:
         _write(to_text(analysis, findings))
+    keep(store, checked)
     return EXIT_FINDINGS if fails(findings, args.fail_on) else EXIT_OK
 
 
@@ -208,10 +213,10 @@ def _progress_bar(done: int, total: int, what: str) -> None:
 
 
 def _cmd_build(args: argparse.Namespace) -> int:
-    from .site import build  # the site stack (jinja2, markdown, nh3) loads only for this command
+    from .build.site import build  # the site stack (jinja2, markdown, nh3) loads only for this command
 
     summary = build(args.specs, args.output, progress=_progress_bar if sys.stderr.isatty() else None,
-                    incremental=not args.fresh)
+                    fresh=args.fresh, cache=args.cache)
     c = counts(summary.findings)
     index = summary.output / "index.html"
     _write(
@@ -282,7 +287,7 @@ def _cmd_propose(args: argparse.Namespace) -> int:
         if p.design is None or not p.edits:
             continue
         before = read[p.channel_id]
-        after = proposing.edit_header(before, proposing.file_edits(p))
+        after = edit_header(before, file_edits(p))
         changes.append((root / p.file, before, after))
         _write("".join(difflib.unified_diff(before.splitlines(keepends=True), after.splitlines(keepends=True),
                                             f"a/{p.file}", f"b/{p.file}")))
@@ -295,10 +300,7 @@ def _cmd_propose(args: argparse.Namespace) -> int:
         result = load_spec(root)
     else:
         result = proposing.apply_proposals(spec, proposals)
-    ids = {p.channel_id for p in proposals}
-    left = [f for f in run_rules(analyze(result), only=proposing.TARGET_RULES)
-            if not f.waived and f.severity in ("error", "warning") and ids & set(f.channels)
-            and f.rule not in proposing.FIXED_BY_OTHER_MEANS]
+    left = proposing.still_open(result, proposals)
     verb = "written" if args.write else "applied"
     _write(f"{len([p for p in proposals if p.design])} of {len(proposals)} channel(s) have a proposal; "
            f"{'files ' + verb if args.write else 'nothing written (use --write)'}; "
@@ -321,7 +323,7 @@ def _cmd_new(args: argparse.Namespace) -> int:
 
 
 def _cmd_import(args: argparse.Namespace) -> int:
-    from .table import plan_import, read_mapping, write_planned
+    from .importing import plan_import, read_mapping, write_planned
 
     mapping = read_mapping(Path(args.mapping)) if args.mapping else None
     planned = plan_import(args.specs, args.table, mapping)
@@ -340,10 +342,11 @@ def _cmd_import(args: argparse.Namespace) -> int:
 
 
 def _cmd_export(args: argparse.Namespace) -> int:
-    from .table import export_table, to_csv, to_json_table
+    from .build.pipeline import channel_store, check
+    from .exporting import export_table, to_csv, to_json_table
 
-    analysis = _load(args.specs)
-    columns, rows = export_table(analysis, run_rules(analysis))
+    checked = check(args.specs, channel_store(Path(args.specs)))
+    columns, rows = export_table(checked.analysis, checked.findings)
     if args.format == "json":
         _write(to_json_table(columns, rows), lambda: to_json_table(columns, rows, ascii_only=True), escaped=True)
     else:

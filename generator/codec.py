@@ -123,9 +123,18 @@ def _decoder(kind: Any) -> Decoder:
         fields = [(f.name, _decoder(hints[f.name])) for f in dataclasses.fields(kind) if f.init]
         names = {n for n, _ in fields}
 
+        # A frozen dataclass's __init__ sets every field through object.__setattr__; a model class has
+        # no __post_init__ and no slots, so filling its __dict__ builds the very same object faster.
+        plain = not hasattr(kind, "__post_init__") and not hasattr(kind, "__slots__") and all(
+            f.init for f in dataclasses.fields(kind))
+
         def instance(data: Json) -> Any:
             if not isinstance(data, dict) or data.keys() != names:
                 _fail(f"{data!r} does not hold the fields of {kind.__name__}")
-            return kind(**{n: d(data[n]) for n, d in fields})
+            if not plain:
+                return kind(**{n: d(data[n]) for n, d in fields})
+            obj = object.__new__(kind)
+            obj.__dict__.update({n: d(data[n]) for n, d in fields})
+            return obj
         return instance
     raise CodecError(f"cannot decode {kind}")

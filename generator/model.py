@@ -280,6 +280,9 @@ class Spec:
     root: str
     system: System
     channels: tuple[Channel, ...]
+    keys: Mapping[str, str] = field(default_factory=_empty)
+    """Each file read (system.toml, channels/...) by its path: a digest of what it holds and what it
+    inherits, which the build cache keys its entries by."""
 
     @cached_property
     def _by_id(self) -> Mapping[str, Channel]:

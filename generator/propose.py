@@ -21,14 +21,13 @@ rate only adds data, so per family and order only the least rate that passes is 
 tried in ascending order from the least the filter could possibly work at.
 
 Objective (default): least data rate, then least filter order, then least group delay at DC.
-Pure: no printing and no file access; :func:`edit_header` computes a file's new text.
+Pure: no printing and no file access; :mod:`generator.edit` turns a proposal into a file's new text.
 """
 
 from __future__ import annotations
 
 import math
-import re
-from collections.abc import Iterator, Mapping, Sequence
+from collections.abc import Iterator, Sequence
 from dataclasses import dataclass, replace
 from functools import lru_cache
 from typing import Protocol
@@ -36,7 +35,6 @@ from typing import Protocol
 from .analysis import ChannelResult, SystemAnalysis, analyze, analyze_channel
 from .analysis.budgets import BudgetIndex, Budgets, Reach
 from .dsp import filters as flt
-from .load import locate_keys, split_header
 from .model import Channel, Converter, Filter, Spec, id_key, key_default
 from .quantities import format_quantity
 from .rules import Finding, run_rules, tagged
@@ -263,10 +261,10 @@ def _unwaived_counts(findings: Sequence[Finding]) -> dict[str, int]:
     return counts
 
 
-def _shared_counts(spec: Spec, known: Mapping[str, ChannelResult] | None = None) -> dict[str, int]:
-    """Unwaived findings per shared rule; ``known`` (results of the unchanged channels, by id) spares
-    analysing every channel again when only one differs: budgets are always computed afresh."""
-    return _unwaived_counts(run_rules(analyze(spec, known), only=SHARED_RULES))
+def _shared_counts(spec: Spec) -> dict[str, int]:
+    """Unwaived findings per shared rule (they read the budgets, which :func:`analyze` computes at
+    once; no channel's own figures are computed for them)."""
+    return _unwaived_counts(run_rules(analyze(spec), only=SHARED_RULES))
 
 
 def _new_shared(before: dict[str, int], after: dict[str, int]) -> list[str]:
@@ -287,12 +285,12 @@ class WholeSystemCheck:
     run over everything.  Its cost grows with the system; :class:`IncrementalCheck` gives the same
     verdicts (the tests compare them)."""
 
-    def __init__(self, spec: Spec, known: Mapping[str, ChannelResult] | None = None) -> None:
-        self.spec, self.known = spec, known
-        self.before = _shared_counts(spec, known)
+    def __init__(self, spec: Spec) -> None:
+        self.spec = spec
+        self.before = _shared_counts(spec)
 
     def breaks(self, candidate: Channel) -> list[str]:
-        return _new_shared(self.before, _shared_counts(replace_channel(self.spec, candidate), self.known))
+        return _new_shared(self.before, _shared_counts(replace_channel(self.spec, candidate)))
 
 
 class IncrementalCheck:
@@ -312,7 +310,7 @@ class IncrementalCheck:
 
     def _analysis(self, channels: tuple[Channel, ...], budgets: Budgets) -> SystemAnalysis:
         spec = replace(self.index.spec, channels=channels)
-        return SystemAnalysis(spec, tuple(ChannelResult(ch) for ch in channels), budgets)
+        return SystemAnalysis(spec, tuple(ChannelResult(ch, spec.system) for ch in channels), budgets)
 
     def _before(self, channel_id: str) -> tuple[Reach, tuple[Channel, ...], dict[str, int]]:
         if self._last is None or self._last[0].channel != channel_id:  # candidates come channel by channel
@@ -513,14 +511,12 @@ def flagged_channels(spec: Spec, findings: Sequence[Finding] | None = None) -> l
 
 
 def propose(spec: Spec, channel_ids: Sequence[str] | None = None,
-            prefer: Sequence[str] = DEFAULT_PREFERENCE,
-            known: Mapping[str, ChannelResult] | None = None, whole_system: bool = False) -> list[Proposal]:
+            prefer: Sequence[str] = DEFAULT_PREFERENCE, whole_system: bool = False) -> list[Proposal]:
     """Proposals for the named channels (default: :func:`flagged_channels`), in id order.
 
     The shared constraints are checked by an :class:`IncrementalCheck`, its baseline budgets
     computed once here; ``whole_system`` uses the :class:`WholeSystemCheck` instead (the slow
-    reference, for the tests), which reuses ``known`` (the caller's results for this very spec,
-    by channel id) rather than analysing every channel again.
+    reference, for the tests).
 
     Raises KeyError for an unknown channel id; ValueError for an unknown criterion in ``prefer``.
     """
@@ -529,13 +525,7 @@ def propose(spec: Spec, channel_ids: Sequence[str] | None = None,
         raise ValueError(f"preference {','.join(prefer)}: use each of {', '.join(CRITERIA)} at most once")
     order = [*prefer, *(c for c in CRITERIA if c not in prefer)]
     ids = list(channel_ids) if channel_ids else flagged_channels(spec)
-    check: SharedCheck
-    if whole_system:
-        if known is None:  # the caller's analysis of this very spec, when it has one
-            known = {r.channel.id: r for r in analyze(spec).channels}
-        check = WholeSystemCheck(spec, known)
-    else:
-        check = IncrementalCheck(spec)
+    check: SharedCheck = WholeSystemCheck(spec) if whole_system else IncrementalCheck(spec)
     return [propose_channel(spec, spec.channel(cid), order, check) for cid in ids]
 
 
@@ -548,58 +538,10 @@ def apply_proposals(spec: Spec, proposals: Sequence[Proposal]) -> Spec:
     return spec
 
 
-# ------------------------------------------------------------------------------------ file edits
-
-_FILTER_KEY_ORDER = ("family", "order", "corner", "ripple", "stopband_attenuation")
-_VALUE = re.compile(r'^(\s*[A-Za-z0-9_\-"\'.]+\s*=\s*)("(?:[^"\\]|\\.)*"|\'[^\']*\'|[^\s#]+)(.*)$')
-
-
-def edit_header(text: str, edits: Sequence[tuple[str, str | None]]) -> str:
-    """The channel file ``text`` with each (key path, TOML value) of ``edits`` set in place.
-
-    An existing key keeps its line, indentation and trailing comment, with only its value
-    replaced; a missing key is inserted after the last key of its table; a missing table is
-    added at the end of the header; a value of None removes the key's line.  Every other byte is
-    kept.  Raises SpecError (from :func:`generator.load.split_header`) when the file has no header.
-    """
-    first, header, _ = split_header(text)
-    lines = text.split("\n")
-    places = locate_keys(header, first)
-    header_last = first - 1 + len(header.split("\n"))  # 1-based line of the header's last line
-    inserts: dict[int, list[str]] = {}  # after 1-based line -> new lines
-    new_tables: dict[str, list[str]] = {}
-    removed: set[int] = set()
-    for path, value in edits:
-        table, key = path.rsplit(".", 1)
-        if value is None:
-            if path in places:
-                removed.add(places[path][0] - 1)
-            continue
-        if path in places:
-            i = places[path][0] - 1
-            m = _VALUE.match(lines[i])
-            if m is None:
-                raise ValueError(f"cannot edit line {i + 1}: {lines[i]!r}")
-            lines[i] = m.group(1) + value + m.group(3)
-        elif table in places:
-            last = max(ln for p, (ln, _c) in places.items() if p == table or p.startswith(table + "."))
-            inserts.setdefault(last, []).append(f"{key} = {value}")
-        else:
-            new_tables.setdefault(table, []).append(f"{key} = {value}")
-    for table, body in new_tables.items():
-        inserts.setdefault(header_last, []).extend(["", f"[{table}]", *body])
-    out: list[str] = []
-    for i, line in enumerate(lines):
-        if i not in removed:
-            out.append(line)
-        out.extend(inserts.get(i + 1, ()))
-    return "\n".join(out)
-
-
-def file_edits(proposal: Proposal) -> tuple[tuple[str, str | None], ...]:
-    """The proposal's edits, filter keys in their usual order."""
-    def rank(item: tuple[str, str | None]) -> tuple[int, int]:
-        table, key = item[0].rsplit(".", 1)
-        return (0 if table == "conversion" else 1,
-                _FILTER_KEY_ORDER.index(key) if key in _FILTER_KEY_ORDER else 99)
-    return tuple(sorted(proposal.edits, key=rank))
+def still_open(spec: Spec, proposals: Sequence[Proposal]) -> list[Finding]:
+    """The findings a rate or filter could fix that remain on the proposals' channels in ``spec``
+    (the tree with the proposals applied or written): what ``propose`` reports as left."""
+    ids = {p.channel_id for p in proposals}
+    return [f for f in run_rules(analyze(spec), only=TARGET_RULES)
+            if not f.waived and f.severity in ("error", "warning") and ids & set(f.channels)
+            and f.rule not in FIXED_BY_OTHER_MEANS]

@@ -125,6 +125,11 @@ def _compact(value: Any, ascii_only: bool) -> str:
     return json.dumps(_clean(value), ensure_ascii=ascii_only, allow_nan=False)
 
 
+def figures_text(result: ChannelResult) -> str:
+    """A channel's figures as the JSON text the contract (and the build cache) holds."""
+    return _compact(result.figures, False)
+
+
 def _layout(value: Any, level: int, ascii_only: bool) -> str:
     """JSON text with the document's structure on its own lines and every list item on one line.
 
@@ -160,7 +165,7 @@ def to_json(analysis: SystemAnalysis, findings: list[Finding], ascii_only: bool 
     def channel(r: ChannelResult) -> _Encoded:
         figures = memo.get(r.channel.id)
         if figures is None:
-            figures = memo[r.channel.id] = _compact(r.figures, ascii_only)
+            figures = memo[r.channel.id] = _compact(r.figures, ascii_only) if ascii_only else figures_text(r)
         head = json.dumps(_channel_head(r, mine), ensure_ascii=ascii_only)  # strings only: no _clean
         return _Encoded(f'{head[:-1]}, "figures": {figures}}}')
 

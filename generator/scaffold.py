@@ -20,10 +20,11 @@ from typing import Any
 
 from . import schema
 from .errors import SpecError, SpecErrors
-from .load import CHANNEL_DIR, CHANNEL_ID, SYSTEM_FILE, channel_files, load_spec, load_system
+from .load import load_spec, load_system
 from .model import System
 from .quantities import format_quantity
 from .schema import Key
+from .source import CHANNEL_DIR, CHANNEL_ID, SYSTEM_FILE, channel_files
 
 # --------------------------------------------------------------------------- TOML text
 

@@ -1,7 +1,7 @@
 """Live preview: build the site, serve it on the loopback address, rebuild when a spec changes.
 
 The watcher scans the spec folder's file times and sizes every ``interval`` seconds and rebuilds
-the whole site (:func:`generator.site.build`, a fraction of a second for a few hundred channels)
+the whole site (:func:`generator.build.site.build`, a fraction of a second for a few hundred channels)
 when anything changed.  Served HTML pages get a small script, added as they are sent and never
 written into the built files, that asks ``/__specfold/version`` twice a second and reloads the
 page when the number changes.  While the specs have errors every page is an error page listing
@@ -33,9 +33,9 @@ from pathlib import Path
 from typing import Any
 from urllib.parse import unquote
 
+from .build.site import build
 from .errors import BUG, SpecError, SpecErrors, bug_summary
 from .files import walk
-from .site import build
 
 HOST = "127.0.0.1"
 ALLOWED_HOSTS = ("127.0.0.1", "localhost")

@@ -46,14 +46,15 @@ def minimal_tree(tmp_path: Path) -> Path:
 
 
 @pytest.fixture(autouse=True, scope="session")
-def _signing_key_folder(tmp_path_factory: pytest.TempPathFactory) -> Iterator[None]:
-    """Builds seal their caches with a per-user key kept in ``$XDG_CACHE_HOME/specfold``: the tests
-    keep theirs in a folder of the session, never in the real home (child processes inherit it)."""
-    folder = tmp_path_factory.mktemp("xdg-cache")
-    before = os.environ.get("XDG_CACHE_HOME")
-    os.environ["XDG_CACHE_HOME"] = str(folder)
+def _cache_folder(tmp_path_factory: pytest.TempPathFactory) -> Iterator[None]:
+    """Builds and checks keep their cache beside the spec folder unless $SPECFOLD_CACHE names one:
+    the tests keep theirs in a folder of the session, never beside the demo in the repository
+    (child processes inherit it)."""
+    folder = tmp_path_factory.mktemp("specfold-cache")
+    before = os.environ.get("SPECFOLD_CACHE")
+    os.environ["SPECFOLD_CACHE"] = str(folder)
     yield
     if before is None:
-        os.environ.pop("XDG_CACHE_HOME", None)
+        os.environ.pop("SPECFOLD_CACHE", None)
     else:
-        os.environ["XDG_CACHE_HOME"] = before
+        os.environ["SPECFOLD_CACHE"] = before

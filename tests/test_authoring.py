@@ -20,14 +20,15 @@ import pytest
 
 from generator import schema, serve
 from generator.analysis import analyze
+from generator.build.site import build
 from generator.cli import EXIT_BAD_INPUT, EXIT_OK, main
 from generator.errors import SpecErrors
+from generator.exporting import export_table, flatten, to_csv
+from generator.importing import plan_import, resolve_header, write_planned
 from generator.load import load_spec
 from generator.rules import run_rules
 from generator.scaffold import new_channel
 from generator.serve import VERSION_PATH, Preview
-from generator.site import build
-from generator.table import export_table, flatten, plan_import, resolve_header, to_csv, write_planned
 
 from .conftest import DATA, DEMO, ROOT
 

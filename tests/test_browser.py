@@ -23,7 +23,8 @@ from typing import Any
 
 import pytest
 
-from generator import render, site
+from generator import views
+from generator.build import site
 
 from .conftest import DEMO, ROOT
 
@@ -276,7 +277,7 @@ FIRST = 5
 def chunked_site(tmp_path_factory: pytest.TempPathFactory) -> Path:
     out = tmp_path_factory.mktemp("chunked") / "site"
     with pytest.MonkeyPatch.context() as mp:
-        mp.setattr(render, "TABLE_FIRST_ROWS", FIRST)
+        mp.setattr(views, "TABLE_FIRST_ROWS", FIRST)
         site.build(DEMO, out)
     return out
 

@@ -10,7 +10,7 @@ import numpy as np
 import pytest
 from scipy import signal as sps
 
-from generator import render
+from generator import views
 from generator.analysis import ChannelResult, SystemAnalysis, analyze
 from generator.analysis.sampling import SamplingResult
 from generator.charts import (
@@ -68,7 +68,7 @@ def _butterworth_channel(demo: SystemAnalysis) -> ChannelResult:
                        rate_over_nyquist=3.0, first_alias_hz=2000.0, flatness_db=0.5,
                        filter=flt.design("butterworth", 4, 1000.0), required_alias_rejection_db=20.0,
                        stop_edge_hz=2000.0, alias_rejection_source="analog filter")
-    return ChannelResult(channel=base.channel, sampling=s)
+    return ChannelResult.of(base.channel, base.system, sampling=s)
 
 
 # ---------------------------------------------------------------------------------------------
@@ -293,8 +293,8 @@ def test_chart_ids_unique_and_figures_deterministic(demo: SystemAnalysis) -> Non
 
 def test_budget_bars_show_utilisation(demo: SystemAnalysis) -> None:
     findings = run_rules(demo)
-    ctx = render.Context(demo, findings, render.channel_paths([r.channel.id for r in demo.channels]))
-    converters, links, stores = render.budget_items(ctx, "")
+    ctx = views.Context(demo, findings, views.channel_paths([r.channel.id for r in demo.channels]))
+    converters, links, stores = views.budget_items(ctx, "")
     spec_links = demo.spec.system.links
     for item in links:
         (bar,) = item.bars

@@ -16,8 +16,6 @@ from numpy.testing import assert_allclose
 from scipy import optimize, signal, special
 
 from generator.dsp import filters as flt
-from generator.dsp import memo
-from generator.dsp import reconstruction as rec
 
 # ---------------------------------------------------------------------------------------------
 # Butterworth response, tests/REFERENCES.md R2.2 [WT], [ZUM], [SCIPY]
@@ -356,43 +354,6 @@ def test_extreme_grid_is_finite_and_silent() -> None:
                 for as_ in (1.0, 98.0, 200.0):
                     d = flt.least_order(family, fp, fs, 0.01, as_)
                     assert d is None or (1 <= d.order <= 20 and math.isfinite(d.corner_hz) and d.corner_hz > 0)
-
-
-def test_remembered_designs_are_what_scipy_designs() -> None:
-    # The build cache keeps prototypes, least orders and hold fractions between processes
-    # (dsp.memo).  Reference: scipy.signal designing the same prototype afresh, cheb1ord's order
-    # for the same mask, and the hold's loss -20 log10|sinc(x)| at the remembered fraction.
-    flt.design("butterworth", 5, 1000.0)
-    flt.least_order("chebyshev1", 1000.0, 2500.0, 0.5, 60.0)
-    rec.max_hold_fraction(0.5)
-    kept = memo.known()
-    saved = {name: dict(m.table) for name, m in memo._MEMOS.items()}
-    try:
-        for m in memo._MEMOS.values():
-            m.table.clear()
-        assert memo.remember(kept) == sum(len(t) for t in kept.values())
-        z, p, k = flt._prototype("butterworth", 5, 0.1, 80.0)
-        z_ref, p_ref, k_ref = signal.butter(5, 1.0, analog=True, output="zpk")
-        assert_allclose(np.sort_complex(p), np.sort_complex(p_ref), rtol=1e-12)
-        assert z.size == len(z_ref) == 0 and k == pytest.approx(k_ref, rel=1e-12)
-        n_ref, _ = signal.cheb1ord(1.0, 2.5, 0.5, 60.0, analog=True)
-        remembered = flt.least_order("chebyshev1", 1000.0, 2500.0, 0.5, 60.0)
-        assert remembered is not None and remembered.order == n_ref
-        x = rec.max_hold_fraction(0.5)
-        assert -20 * math.log10(abs(np.sinc(x))) == pytest.approx(0.5, abs=1e-9)
-        # entries of the wrong shape are refused, and nothing remembered overwrites an entry
-        bad = {"filter prototypes": {("butterworth", 5, 0.1, 80.0): (np.zeros(0), np.ones(5), 1.0),
-                                     ("nonsense", 3, 0.1, 80.0): (np.zeros(0, complex), np.ones(3, complex), 1.0)},
-               "least orders": {("butterworth", 2.0, 1.0, 40.0): (4.5, 1.0)},
-               "hold fractions": {0.7: 0.9, "0.5": 0.3},
-               "no such memo": {1: 2}}
-        assert memo.remember(bad) == 0 and memo.remember(["not", "a", "table"]) == 0
-        good = {"hold fractions": {0.5: 0.25}}
-        assert memo.remember(good) == 1 and rec.max_hold_fraction(0.5) == x
-    finally:
-        for name, m in memo._MEMOS.items():
-            m.table.clear()
-            m.table.update(saved[name])
 
 
 MASKS = [(r, ap, as_) for r in (1.05, 1.2, 1.5, 2.0, 3.0, 5.0, 10.0, 50.0) for ap in (0.001, 0.01, 0.1, 0.5, 1.0, 3.0)

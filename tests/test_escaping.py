@@ -20,8 +20,9 @@ import pytest
 
 from generator.cli import EXIT_BAD_INPUT, main
 from generator.diff import _md
+from generator.importing import plan_import, write_planned
 from generator.report import show_controls, xml_text
-from generator.table import guard_cell, plan_import, unguard_cell, write_planned
+from generator.table import guard_cell, unguard_cell
 
 from .conftest import MINIMAL
 

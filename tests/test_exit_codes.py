@@ -12,6 +12,7 @@ from pathlib import Path
 import pytest
 
 from generator import cli
+from generator.build import pipeline
 from generator.cli import EXIT_BAD_INPUT, EXIT_FINDINGS, EXIT_INTERNAL, EXIT_OK, main
 
 from .conftest import DEMO, MINIMAL, ROOT
@@ -24,19 +25,20 @@ def _broken(*_: object, **__: object) -> None:
 @pytest.mark.parametrize("fail_on", ["error", "never"])
 def test_a_bug_exits_3_with_a_short_message(fail_on: str, monkeypatch: pytest.MonkeyPatch,
                                             capsys: pytest.CaptureFixture[str]) -> None:
-    monkeypatch.setattr(cli, "run_rules", _broken)
+    monkeypatch.setattr(pipeline, "run_rules", _broken)
     code = main(["check", str(MINIMAL), "--fail-on", fail_on])
     out, err = capsys.readouterr()
     assert code == EXIT_INTERNAL and EXIT_INTERNAL not in (EXIT_OK, EXIT_FINDINGS, EXIT_BAD_INPUT)
     assert out == ""
-    assert err.startswith("specfold: internal error: ZeroDivisionError: float division by zero (generator/cli.py:")
+    assert err.startswith("specfold: internal error: ZeroDivisionError: float division by zero "
+                          "(generator/build/pipeline.py:")
     assert "a bug in specfold, not a problem in your specs" in err and "--traceback" in err
     assert "Traceback" not in err and len(err.splitlines()) == 2
 
 
 def test_traceback_flag_and_variable_show_where(monkeypatch: pytest.MonkeyPatch,
                                                 capsys: pytest.CaptureFixture[str]) -> None:
-    monkeypatch.setattr(cli, "run_rules", _broken)
+    monkeypatch.setattr(pipeline, "run_rules", _broken)
     for argv in (["--traceback", "check", str(MINIMAL)], ["check", str(MINIMAL), "--traceback"]):
         assert main(argv) == EXIT_INTERNAL
         err = capsys.readouterr().err
@@ -49,7 +51,7 @@ def test_traceback_flag_and_variable_show_where(monkeypatch: pytest.MonkeyPatch,
 def test_a_bug_in_a_real_process_exits_3(tmp_path: Path) -> None:
     # the installed entry point, not only main(): a bug planted through sitecustomize
     (tmp_path / "sitecustomize.py").write_text(
-        "import generator.cli as c\n"
+        "import generator.build.pipeline as c\n"
         "def broken(*a, **k):\n    raise KeyError('planted')\n"
         "c.run_rules = broken\n", encoding="utf-8")
     env = {**os.environ, "PYTHONPATH": f"{tmp_path}{os.pathsep}{ROOT}"}
@@ -89,7 +91,7 @@ def test_an_unreadable_folder_is_bad_input_not_a_bug(monkeypatch: pytest.MonkeyP
     def denied(*_: object, **__: object) -> None:
         raise PermissionError(errno.EACCES, "Permission denied", str(MINIMAL))
 
-    monkeypatch.setattr(cli, "run_rules", denied)
+    monkeypatch.setattr(pipeline, "run_rules", denied)
     assert main(["check", str(MINIMAL)]) == EXIT_BAD_INPUT
     err = capsys.readouterr().err
     assert err == f"specfold: {MINIMAL}: permission denied (read-only, or not yours)\n"
@@ -99,6 +101,6 @@ def test_an_unexpected_os_error_is_a_bug(monkeypatch: pytest.MonkeyPatch, capsys
     def bad_descriptor(*_: object, **__: object) -> None:
         raise OSError(errno.EBADF, "Bad file descriptor")
 
-    monkeypatch.setattr(cli, "run_rules", bad_descriptor)
+    monkeypatch.setattr(pipeline, "run_rules", bad_descriptor)
     assert main(["check", str(MINIMAL)]) == EXIT_INTERNAL
     assert "internal error: OSError" in capsys.readouterr().err

@@ -17,7 +17,7 @@ from pathlib import Path
 
 import pytest
 
-from generator import load
+from generator import load, source
 from generator.cli import EXIT_BAD_INPUT, EXIT_FINDINGS, EXIT_OK, main
 from generator.errors import SpecError, SpecErrors
 
@@ -182,15 +182,15 @@ def _padded(size: int) -> str:
 
 
 def test_channel_file_at_the_size_limit_loads(tree: Path) -> None:
-    text = _padded(load.MAX_FILE_BYTES)
-    assert len(text.encode()) == load.MAX_FILE_BYTES
+    text = _padded(source.MAX_FILE_BYTES)
+    assert len(text.encode()) == source.MAX_FILE_BYTES
     _write(tree, text)
     spec = load.load_spec(tree)
     assert len(spec.channel("ACC-1").notes) > 900_000
 
 
 def test_channel_file_over_the_size_limit_is_refused(tree: Path, capsys: pytest.CaptureFixture[str]) -> None:
-    _write(tree, _padded(load.MAX_FILE_BYTES + 1))
+    _write(tree, _padded(source.MAX_FILE_BYTES + 1))
     code = main(["check", str(tree)])
     _, err = capsys.readouterr()
     assert code == EXIT_BAD_INPUT
@@ -199,7 +199,7 @@ def test_channel_file_over_the_size_limit_is_refused(tree: Path, capsys: pytest.
 
 def test_system_file_over_the_size_limit_is_refused(tree: Path, capsys: pytest.CaptureFixture[str]) -> None:
     system = (tree / "system.toml").read_text(encoding="utf-8")
-    (tree / "system.toml").write_text(system + "#" * (load.MAX_FILE_BYTES * 3), encoding="utf-8")
+    (tree / "system.toml").write_text(system + "#" * (source.MAX_FILE_BYTES * 3), encoding="utf-8")
     code = main(["check", str(tree)])
     _, err = capsys.readouterr()
     assert code == EXIT_BAD_INPUT
@@ -241,13 +241,13 @@ def test_many_problems_in_one_file_stay_fast(tree: Path, capsys: pytest.CaptureF
     # are counted rather than timed, so the check does not depend on the machine's speed.
     head = (tree / "channels" / "ACC-1.md").read_text(encoding="utf-8").split("+++")[1]
     _write(tree, "+++" + head + '[[waiver]]\nrule = "x"\n' * 20_000 + "+++\n")
-    real = load._read_file
+    real = source.read_text
 
-    def read(path: Path, rel: str, problems: list[SpecError]) -> str | None:
-        text = real(path, rel, problems)
+    def read(path: Path, rel: str, problems: list[SpecError], *args: object) -> str | None:
+        text = real(path, rel, problems, *args)  # type: ignore[arg-type]
         return _CountedSplits(text) if text is not None and rel == "channels/ACC-1.md" else text
 
-    monkeypatch.setattr(load, "_read_file", read)
+    monkeypatch.setattr(load, "read_text", read)
     code = main(["check", str(tree)])
     _, err = capsys.readouterr()
     assert code == EXIT_BAD_INPUT

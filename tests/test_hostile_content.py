@@ -22,7 +22,7 @@ from typing import Any
 import pytest
 from markupsafe import escape
 
-from generator import site
+from generator.build import site
 from generator.errors import SpecErrors
 from generator.load import load_spec
 
@@ -47,7 +47,7 @@ OWN_FORM = {
     "input": {"type": "search", "name": "q", "placeholder": "id, title, filter…", "autocomplete": "off"},
 }
 CHART_DATA_ID = re.compile(r"^chart-[a-z]+-data$")
-ROWS_DATA_ID = "channel-rows"  # the overview's channel rows as JSON (generator/render.py rows_json)
+ROWS_DATA_ID = "channel-rows"  # the overview's channel rows as JSON (generator/views.py rows_json)
 
 
 def _rows_problems(body: str) -> list[str]:

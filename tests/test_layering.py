@@ -1,44 +1,37 @@
-"""Imports point one way through the pipeline (see DEVELOPERS.md)."""
+"""Imports point one way through the pipeline, layer by layer (the chain DEVELOPERS.md draws)."""
 
 from __future__ import annotations
 
 import ast
+import re
 from pathlib import Path
 
 from .conftest import ROOT
 
 PACKAGE = ROOT / "generator"
-# module -> the generator modules it must never import (directly)
-_SITE = {"charts", "render", "site", "cache"}
-FORBIDDEN = {
-    "errors": {"quantities", "schema", "model", "load", "dsp", "analysis", "rules", "report", "cli", *_SITE},
-    "quantities": {"schema", "model", "load", "dsp", "analysis", "rules", "report", "cli", *_SITE},
-    "model": {"load", "dsp", "analysis", "rules", "report", "cli", *_SITE},
-    "load": {"dsp", "analysis", "rules", "report", "cli", *_SITE},
-    "dsp": {"quantities", "schema", "model", "load", "analysis", "rules", "report", "cli", *_SITE},
-    "analysis": {"load", "rules", "report", "cli", "diff", *_SITE},
-    "rules": {"load", "report", "cli", "diff", *_SITE},
-    "report": {"cli", "diff", *_SITE},
-    "diff": {"cli", *_SITE},
-    "propose": {"report", "cli", "diff", *_SITE},
-    "charts": {"load", "rules", "report", "render", "site", "cache", "cli"},
-    "render": {"load", "site", "cache", "cli"},
-    "site": {"cli"},
-    "cache": {"site", "cli", "charts", "propose", "report"},
-    "files": {"quantities", "schema", "model", "load", "dsp", "analysis", "rules", "report", "cli", "diff",
-              "propose", *_SITE},
-    "scaffold": {"dsp", "analysis", "rules", "report", "cli", "diff", "table", "serve", *_SITE},
-    "table": {"cli", "diff", "serve", *_SITE},
-    "serve": {"cli", "table", "scaffold"},
-}
+
+LAYERS: tuple[tuple[str, tuple[str, ...]], ...] = (
+    ("base", ("errors", "files", "quantities", "schema", "model", "codec")),
+    ("read", ("source", "values", "load")),
+    ("compute", ("dsp", "analysis")),
+    ("check", ("rules",)),
+    ("design", ("propose",)),
+    ("present", ("report", "charts", "edit", "views", "table", "scaffold", "importing", "exporting", "diff")),
+    ("build", ("build",)),
+    ("app", ("serve", "docs", "cli", "__main__")),
+)
+"""The allow-list, in order: a module may import the modules listed before it (in its own layer or
+an earlier one), never one listed after it.  A package (dsp, analysis, rules, build) is one entry."""
+
+ORDER = [module for _, modules in LAYERS for module in modules]
 
 
 def _top(module: Path) -> str:
-    rel = module.relative_to(PACKAGE).with_suffix("")
-    return rel.parts[0]
+    return module.relative_to(PACKAGE).with_suffix("").parts[0]
 
 
 def _imports(module: Path) -> set[str]:
+    """The generator modules (top-level names) that ``module`` imports, relative imports resolved."""
     tree = ast.parse(module.read_text(encoding="utf-8"))
     here = module.relative_to(PACKAGE).parts
     found: set[str] = set()
@@ -62,14 +55,29 @@ def _imports(module: Path) -> set[str]:
     return found
 
 
+def test_every_module_has_a_place_in_the_layers() -> None:
+    tops = {_top(m) for m in PACKAGE.rglob("*.py")} - {"__init__"}
+    assert tops == set(ORDER), (sorted(tops - set(ORDER)), sorted(set(ORDER) - tops))
+
+
 def test_imports_point_one_way() -> None:
     bad = []
     for module in sorted(PACKAGE.rglob("*.py")):
         top = _top(module)
+        if top == "__init__":
+            continue
         for target in _imports(module):
-            if target != top and target in FORBIDDEN.get(top, set()):
-                bad.append(f"{module.relative_to(ROOT)} imports {target}")
+            if target != top and target in ORDER and ORDER.index(target) > ORDER.index(top):
+                bad.append(f"{module.relative_to(ROOT)} imports {target}, listed after {top}")
     assert not bad, "\n".join(bad)
+
+
+def test_developers_md_draws_the_same_chain() -> None:
+    text = (ROOT / "DEVELOPERS.md").read_text(encoding="utf-8")
+    drawn = re.search(r"<!-- layers -->\n```\n(.*?)\n```", text, re.S)
+    assert drawn, "DEVELOPERS.md lost its layer drawing"
+    rows = [line.split(":", 1) for line in drawn.group(1).splitlines() if ":" in line]
+    assert [(name.strip(), tuple(m.strip() for m in mods.split(","))) for name, mods in rows] == list(LAYERS)
 
 
 def test_only_cli_prints() -> None:
@@ -84,7 +92,8 @@ def test_only_cli_prints() -> None:
 
 
 def test_the_checker_sees_a_violation() -> None:
-    # the walker must actually resolve relative imports, or the test above proves nothing
+    # the walker must actually resolve relative imports, or the tests above prove nothing
     assert "cli" not in _imports(PACKAGE / "report.py")
     assert {"analysis", "rules"} <= _imports(PACKAGE / "report.py")
     assert "analysis" in _imports(PACKAGE / "rules" / "sampling.py")
+    assert "store" in _imports(PACKAGE / "build" / "site.py") or "build" in _imports(PACKAGE / "build" / "site.py")

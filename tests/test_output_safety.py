@@ -12,7 +12,6 @@ from __future__ import annotations
 
 import errno
 import hashlib
-import json
 import os
 import shutil
 import signal
@@ -24,20 +23,14 @@ from pathlib import Path
 
 import pytest
 
-from generator import cache, files, site
+from generator import files
+from generator.build import output, pages, site
 from generator.cli import EXIT_BAD_INPUT, main
 from generator.errors import SpecError
 from generator.files import write as write_inside
 
 from .conftest import DEMO, MINIMAL, ROOT
 from .test_writers import halted
-
-
-def published(files: dict[str, str]) -> dict[str, str]:
-    """A snapshot without the build cache, whose pickles may differ in bytes from one build to the
-    next (object sharing, set order under hash randomisation) for equal content; the published
-    pages are byte-identical."""
-    return {rel: digest for rel, digest in files.items() if not rel.startswith(cache.CACHE + "/")}
 
 
 def snapshot(folder: Path) -> dict[str, str]:
@@ -65,7 +58,7 @@ def test_refuses_a_repository_root_even_with_the_marker(tmp_path: Path, holds: s
     repo = tmp_path / "repo"
     repo.mkdir()
     (repo / holds).mkdir() if holds == ".git" else (repo / holds).write_text("[project]\n", encoding="utf-8")
-    (repo / site.MARKER).write_text(site.MARKER_TEXT, encoding="utf-8")  # even a marker does not make it ours
+    (repo / output.MARKER).write_text(output.MARKER_TEXT, encoding="utf-8")  # even a marker does not make it ours
     before = snapshot(repo)
     with pytest.raises(SpecError, match="root of a repository"):
         site.build(MINIMAL, repo)
@@ -77,9 +70,9 @@ def test_refuses_a_repository_root_even_with_the_marker(tmp_path: Path, holds: s
 def test_refuses_this_repository_and_the_demo_specs(tmp_path: Path) -> None:
     for target, reason in ((ROOT, "specs folder"), (DEMO, "specs folder"), (DEMO / "channels", "did not make")):
         with pytest.raises(SpecError, match=reason):
-            site.check_output(target, DEMO)
+            output.check_output(target, DEMO)
     with pytest.raises(SpecError, match="root of a repository"):
-        site.check_output(ROOT, tmp_path / "specs")  # specs kept elsewhere: the repository is still refused
+        output.check_output(ROOT, tmp_path / "specs")  # specs kept elsewhere: the repository is still refused
 
 
 def test_refuses_the_home_folder(tmp_path: Path, monkeypatch: pytest.MonkeyPatch,
@@ -96,7 +89,7 @@ def test_refuses_the_home_folder(tmp_path: Path, monkeypatch: pytest.MonkeyPatch
 
 def test_refuses_the_file_system_root(capsys: pytest.CaptureFixture[str]) -> None:
     with pytest.raises(SpecError, match="root of the file system"):
-        site.check_output(Path("/"), MINIMAL)
+        output.check_output(Path("/"), MINIMAL)
     assert main(["build", str(MINIMAL), "-o", "/"]) == EXIT_BAD_INPUT
     err = capsys.readouterr().err
     assert "refusing to build into /" in err and "Traceback" not in err
@@ -108,8 +101,8 @@ def test_refuses_an_unmarked_folder_and_a_linked_marker(tmp_path: Path) -> None:
     (out / "notes.txt").write_text("keep", encoding="utf-8")
     elsewhere = tmp_path / "elsewhere"
     elsewhere.mkdir()
-    (elsewhere / site.MARKER).write_text(site.MARKER_TEXT, encoding="utf-8")
-    (out / site.MARKER).symlink_to(elsewhere / site.MARKER)  # a marker by link is no marker
+    (elsewhere / output.MARKER).write_text(output.MARKER_TEXT, encoding="utf-8")
+    (out / output.MARKER).symlink_to(elsewhere / output.MARKER)  # a marker by link is no marker
     with pytest.raises(SpecError, match="did not make"):
         site.build(MINIMAL, out)
     assert (out / "notes.txt").read_text(encoding="utf-8") == "keep"
@@ -144,7 +137,7 @@ def test_links_in_the_old_site_are_never_followed(tmp_path: Path) -> None:
     assert outside_page.read_text(encoding="utf-8") == "outside"
     assert not (out / "channels").is_symlink() and not (out / "index.html").is_symlink()
     assert not (out / ".gitignore").exists()
-    assert published(snapshot(out)) == published(built)  # rebuilt in full: the same site
+    assert snapshot(out) == built  # rebuilt in full: the same site
     assert leftovers(out) == []
 
 
@@ -164,14 +157,14 @@ def test_leftovers_with_the_marker_are_cleaned_others_kept(tmp_path: Path) -> No
     site.build(MINIMAL, out)
     dead = tmp_path / ".site.building-dead"
     dead.mkdir()
-    (dead / site.BUILDING_MARKER).write_text(f"{_dead_pid()}\n", encoding="utf-8")
+    (dead / output.BUILDING_MARKER).write_text(f"{_dead_pid()}\n", encoding="utf-8")
     (dead / "index.html").write_text("half", encoding="utf-8")
     live = tmp_path / ".site.building-live"
     live.mkdir()
-    (live / site.BUILDING_MARKER).write_text(f"{os.getpid()}\n", encoding="utf-8")  # a build still running
+    (live / output.BUILDING_MARKER).write_text(f"{os.getpid()}\n", encoding="utf-8")  # a build still running
     old = tmp_path / ".site.old-x"
     old.mkdir()
-    (old / site.MARKER).write_text(site.MARKER_TEXT, encoding="utf-8")
+    (old / output.MARKER).write_text(output.MARKER_TEXT, encoding="utf-8")
     stranger = tmp_path / ".site.building-notours"
     stranger.mkdir()
     (stranger / "thesis.tex").write_text("mine", encoding="utf-8")
@@ -199,9 +192,10 @@ def _big_tree(dest: Path, channels: int = 300) -> Path:
     return dest
 
 
-SITE_STEPS = 9
-"""Halt points a build that replaces a site passes (generator.site): folder made, marked, half the
-pages, all pages, manifest, unmarked, old site aside, new site in, old site emptied but its marker."""
+SITE_STEPS = 8
+"""Halt points a build that replaces a site passes (generator.build.output and .pages): folder made,
+marked, the channel pages written, every page written, unmarked, old site aside, new site in, old
+site emptied but its marker."""
 
 
 def _halted_build(command: list[str], step: int | None) -> int:
@@ -227,8 +221,8 @@ def _every_build_step(specs: Path, out: Path, run: Callable[[list[str], int | No
         left = leftovers(out)
         if out.exists():
             now = snapshot(out)
-            assert now == previous or (published(now) != published(previous) and _sealed(out)), f"step {step}"
-            assert site.BUILDING_MARKER not in now, f"step {step}: the building marker is in the site"
+            assert now == previous or (now != previous and _whole(out)), f"step {step}"
+            assert output.BUILDING_MARKER not in now, f"step {step}: the building marker is in the site"
             if now != previous:  # stopped after the swap: the old site back, so the next step has work
                 shutil.rmtree(out)
                 shutil.copytree(pristine, out, symlinks=True)
@@ -238,7 +232,7 @@ def _every_build_step(specs: Path, out: Path, run: Callable[[list[str], int | No
         step += 1
     assert code == 0
     assert leftovers(out) == []  # the completed build cleared what each stopped one left
-    assert _sealed(out)
+    assert _whole(out)
     return step - 1
 
 
@@ -263,7 +257,7 @@ def test_a_build_stopped_at_every_step_leaves_a_whole_site(tmp_path: Path) -> No
         return halted(command[3:], f"site:{step}" if step is not None else None)
 
     assert _every_build_step(specs, out, forked) == SITE_STEPS
-    assert published(snapshot(out)) == published(snapshot(expected))
+    assert snapshot(out) == snapshot(expected)
 
 
 @pytest.mark.slow
@@ -298,7 +292,9 @@ def test_pool_workers_end_with_a_killed_build(tmp_path: Path) -> None:
         pytest.skip("parent-death signal is Linux only")
     # the worker is busy (a 30 s task) when its build is killed, as a page worker mid-chunk would be;
     # an idle worker would end anyway, on the end of its task pipe
-    code = ("import os, time; from generator import site; p = site._pool(1); pid = p.apply(os.getpid); "
+    code = ("import os, time; import multiprocessing; from generator.build import pages; "
+            "p = multiprocessing.get_context('fork').Pool(1, initializer=pages._die_with_parent, "
+            "initargs=(os.getpid(),)); pid = p.apply(os.getpid); "
             "p.apply_async(time.sleep, (30,)); time.sleep(0.2); print(pid, flush=True); time.sleep(60)")
     child = subprocess.Popen([sys.executable, "-c", code], cwd=ROOT, stdout=subprocess.PIPE, text=True)
     worker = 0
@@ -328,13 +324,10 @@ def _running(pid: int) -> bool:
     return state != "Z"
 
 
-def _sealed(out: Path) -> bool:
-    """Whether every cache file the site's manifest lists is there and carries its seal."""
-    key = cache.signing_key()
-    listed = json.loads((out / cache.MANIFEST).read_text(encoding="utf-8"))["cache"]
-    files = {cache.SHARED_CACHE: listed["shared"], cache.INPUTS_CACHE: listed["inputs"], **listed["shards"]}
-    return key is not None and len(files) > 1 and all(
-        (out / rel).is_file() and cache.seal((out / rel).read_bytes(), key) == seal for rel, seal in files.items())
+def _whole(out: Path) -> bool:
+    """Whether ``out`` is a whole site: its marker, its pages and its JSON contract, no building marker."""
+    return ((out / output.MARKER).is_file() and (out / "index.html").is_file() and (out / pages.SPEC_JSON).is_file()
+            and not (out / output.BUILDING_MARKER).exists())
 
 
 # ---------------------------------------------------------------------------------------------
@@ -377,15 +370,15 @@ def test_a_second_build_into_the_same_output_is_refused_while_one_runs(tmp_path:
     out = tmp_path / "site"
     site.build(MINIMAL, out)
     before = snapshot(out)
-    with site.output_lock(out.resolve()):  # as a build in another process holds it
+    with output.output_lock(out.resolve()):  # as a build in another process holds it
         with pytest.raises(SpecError, match="another specfold build is writing"):
-            site.build(MINIMAL, out, incremental=False)
+            site.build(MINIMAL, out, fresh=True)
         assert main(["build", str(MINIMAL), "-o", str(out), "--fresh"]) == EXIT_BAD_INPUT
     err = capsys.readouterr().err
     assert "another specfold build is writing into" in err and "Traceback" not in err
     assert snapshot(out) == before and leftovers(out) == []
-    site.build(MINIMAL, out, incremental=False)  # the lock is gone with the holder
-    assert published(snapshot(out)) == published(before)
+    site.build(MINIMAL, out, fresh=True)  # the lock is gone with the holder
+    assert snapshot(out) == before
 
 
 def test_leftovers_a_killed_swap_can_leave_are_all_recognised(tmp_path: Path) -> None:
@@ -394,16 +387,16 @@ def test_leftovers_a_killed_swap_can_leave_are_all_recognised(tmp_path: Path) ->
     # an old site emptied down to its marker (killed while it was being deleted)
     emptied = tmp_path / ".site.old-emptied"
     emptied.mkdir()
-    (emptied / site.MARKER).write_text(site.MARKER_TEXT, encoding="utf-8")
+    (emptied / output.MARKER).write_text(output.MARKER_TEXT, encoding="utf-8")
     # a complete new site unmarked as building and not yet swapped in
     complete = tmp_path / ".site.building-complete"
     shutil.copytree(out, complete)
     # a folder made and never marked
     (tmp_path / ".site.building-empty").mkdir()
     # an older specfold's published site that kept the building marker of a dead process
-    (out / site.BUILDING_MARKER).write_text(f"{_dead_pid()}\n", encoding="utf-8")
-    site.build(MINIMAL, out, incremental=False)
-    assert leftovers(out) == [] and not (out / site.BUILDING_MARKER).exists()
+    (out / output.BUILDING_MARKER).write_text(f"{_dead_pid()}\n", encoding="utf-8")
+    site.build(MINIMAL, out, fresh=True)
+    assert leftovers(out) == [] and not (out / output.BUILDING_MARKER).exists()
 
 
 @pytest.mark.parametrize("length", [240, 255])
@@ -413,11 +406,11 @@ def test_an_output_name_near_the_name_limit(length: int, tmp_path: Path) -> None
     out = tmp_path / ("s" * length)
     site.build(MINIMAL, out)
     assert (out / "index.html").is_file()
-    prefix = site.sibling_prefix(out.resolve())
+    prefix = output.sibling_prefix(out.resolve())
     assert len(f"{prefix}building-12345678".encode()) <= 255
     (tmp_path / f"{prefix}old-x").mkdir()
-    (tmp_path / f"{prefix}old-x" / site.MARKER).write_text(site.MARKER_TEXT, encoding="utf-8")
-    site.build(MINIMAL, out, incremental=False)
+    (tmp_path / f"{prefix}old-x" / output.MARKER).write_text(output.MARKER_TEXT, encoding="utf-8")
+    site.build(MINIMAL, out, fresh=True)
     assert sorted(p.name for p in tmp_path.iterdir()) == [out.name]
 
 
@@ -443,7 +436,7 @@ def test_file_system_errors_are_one_sentence_and_leave_the_old_site(
     if where == "mkdtemp":
         def mkdtemp(*args: object, **kwargs: object) -> str:
             raise failure
-        monkeypatch.setattr(site.tempfile, "mkdtemp", mkdtemp)
+        monkeypatch.setattr(output.tempfile, "mkdtemp", mkdtemp)
     elif where == "replace":
         real_replace = os.replace
 
@@ -451,9 +444,9 @@ def test_file_system_errors_are_one_sentence_and_leave_the_old_site(
             if Path(str(src)) == out.resolve():  # moving the old site aside
                 raise failure
             real_replace(src, dst)  # type: ignore[arg-type]
-        monkeypatch.setattr(site.os, "replace", replace)
+        monkeypatch.setattr(output.os, "replace", replace)
     else:
-        real_write = site.write
+        real_write = pages.write
         count = [0]
 
         def write(root: Path, rel: str, data: str | bytes) -> None:
@@ -461,7 +454,7 @@ def test_file_system_errors_are_one_sentence_and_leave_the_old_site(
             if count[0] > 3:
                 raise failure
             real_write(root, rel, data)
-        monkeypatch.setattr(site, "write", write)
+        monkeypatch.setattr(pages, "write", write)
     code = main(["build", str(MINIMAL), "-o", str(out), "--fresh"])
     stderr = capsys.readouterr().err
     assert code == EXIT_BAD_INPUT, stderr

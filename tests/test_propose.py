@@ -16,6 +16,7 @@ from generator import cli
 from generator import propose as P
 from generator.analysis import analyze, analyze_channel
 from generator.dsp import filters as flt
+from generator.edit import edit_header, file_edits
 from generator.load import load_spec
 from generator.rules import run_rules
 
@@ -83,7 +84,7 @@ def _edited_tree(tree: Path, proposals: list[P.Proposal]) -> None:
     for p in proposals:
         if p.design is not None:
             path = tree / p.file
-            path.write_text(P.edit_header(path.read_text(encoding="utf-8"), P.file_edits(p)), encoding="utf-8")
+            path.write_text(edit_header(path.read_text(encoding="utf-8"), file_edits(p)), encoding="utf-8")
 
 
 def _fixable_left(tree: Path, ids: set[str]) -> list[str]:
@@ -221,7 +222,7 @@ def test_write_refuses_a_file_changed_since_it_was_read(tmp_path: Path, monkeypa
 
 def test_edit_header_adds_a_missing_key_under_its_table() -> None:
     text = '+++\ntitle = "x"\n\n[filter]\nfamily = "bessel"  # kept\n\n[[waiver]]\nrule = "r"\n+++\nbody\n'
-    out = P.edit_header(text, [("filter.order", "3"), ("filter.family", '"butterworth"')])
+    out = edit_header(text, [("filter.order", "3"), ("filter.family", '"butterworth"')])
     assert out == ('+++\ntitle = "x"\n\n[filter]\nfamily = "butterworth"  # kept\norder = 3\n\n'
                    '[[waiver]]\nrule = "r"\n+++\nbody\n')
 

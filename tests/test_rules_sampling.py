@@ -166,7 +166,8 @@ def test_extreme_channels_give_finite_figures_and_no_warnings() -> None:
                             result = analyze_sampling(c, system)
                             assert result is not None
                             json.dumps(result.figures(), allow_nan=False)  # raises on NaN or infinity
-                            results.append(ChannelResult(dataclasses.replace(c, id=f"X{len(results)}"), result))
+                            renamed = dataclasses.replace(c, id=f"X{len(results)}")
+                            results.append(ChannelResult.of(renamed, system, sampling=result))
         # and the rules turn them into findings without raising or warning
         findings = run_rules(SystemAnalysis(spec, tuple(results)))
         assert findings and all(f.message for f in findings)

@@ -124,13 +124,13 @@ def test_other_hosts_are_refused(preview: Preview, host: str | None) -> None:
     assert status == 403 and "127.0.0.1 or localhost" in body
 
 
-@pytest.mark.parametrize("path", ["/.specfold-cache/manifest.json", "/.specfold-cache/shared.pickle",
-                                  "/.specfold-site", "/%2especfold-cache/manifest.json", "/channels/../.specfold-site",
-                                  "/.specfold-cache/"])
-def test_the_cache_manifest_and_markers_are_never_served(preview: Preview, path: str) -> None:
-    assert (preview.output / ".specfold-cache" / "manifest.json").is_file()  # they are there
+@pytest.mark.parametrize("path", ["/.specfold-site", "/%2especfold-site", "/channels/../.specfold-site",
+                                  "/.gitignore", "/.secret/"])
+def test_markers_and_dot_files_are_never_served(preview: Preview, path: str) -> None:
+    (preview.output / ".gitignore").write_text("*\n", encoding="utf-8")  # a dot-file in the site, as a user may add
+    assert (preview.output / ".specfold-site").is_file()  # the marker is there
     status, body = _request(preview, path)
-    assert status == 404 and "manifest" not in body.lower().replace("no such page", "")
+    assert status == 404 and "specfold-site" not in body.lower()
 
 
 @pytest.mark.parametrize("line", [b"GET /%00 HTTP/1.1", b"GET /index.html%00.html HTTP/1.1",

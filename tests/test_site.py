@@ -12,8 +12,9 @@ from urllib.parse import unquote, urlsplit
 import numpy as np
 import pytest
 
-from generator import render, site
+from generator import views
 from generator.analysis import analyze
+from generator.build import output, pages, site
 from generator.charts import channel_charts, folding_chart
 from generator.cli import EXIT_BAD_INPUT, EXIT_OK, main
 from generator.errors import SpecError
@@ -86,7 +87,7 @@ def _demo_ids() -> list[str]:
 
 
 def test_every_page_exists(demo_site: Path) -> None:
-    for name in (*TOP_PAGES, "data/spec.json", "assets/site.css", "assets/site.js", site.PLOTLY_ASSET, site.MARKER):
+    for name in (*TOP_PAGES, "data/spec.json", "assets/site.css", "assets/site.js", pages.PLOTLY_ASSET, output.MARKER):
         assert (demo_site / name).is_file(), name
     for cid in _demo_ids():
         page = demo_site / "channels" / f"{cid}.html"
@@ -118,8 +119,8 @@ def test_every_relative_link_and_asset_resolves(demo_site: Path) -> None:
 
 def test_exactly_one_plotly_bundle_shared_by_the_chart_pages(demo_site: Path) -> None:
     bundles = [p for p in demo_site.rglob("*.js") if "plotly" in p.name]
-    assert bundles == [demo_site / site.PLOTLY_ASSET]
-    assert bundles[0].read_bytes() == site.plotly_bundle().read_bytes()
+    assert bundles == [demo_site / pages.PLOTLY_ASSET]
+    assert bundles[0].read_bytes() == pages.plotly_bundle().read_bytes()
     # plotly.js reads base64 typed arrays from 2.28 on (plotly.js changelog, from memory)
     head = bundles[0].read_text(encoding="utf-8", errors="replace")[:200]
     major, minor = (int(x) for x in head.split("plotly.js v", 1)[1].split(".")[:2])
@@ -283,11 +284,11 @@ def test_xss_payload_in_title_and_notes_comes_out_inert(tmp_path: Path) -> None:
     chan = (out / "channels" / "ACC-1.html").read_text(encoding="utf-8")
     assert "&lt;script&gt;alert(" in chan  # the title is shown, escaped
     assert 'href="https://example.org/manual"' in chan  # ordinary links survive
-    assert "javascript:" not in render.notes_html(XSS_NOTES)
+    assert "javascript:" not in views.notes_html(XSS_NOTES)
 
 
 def test_notes_render_markdown() -> None:
-    html = str(render.notes_html("**bold** and `code`\n\n- one\n- two\n"))
+    html = str(views.notes_html("**bold** and `code`\n\n- one\n- two\n"))
     assert "<strong>bold</strong>" in html and "<code>code</code>" in html and "<li>one</li>" in html
 
 
@@ -321,7 +322,7 @@ def test_a_folder_holding_only_gitignore_is_used_and_the_gitignore_kept(tmp_path
     out.mkdir()
     (out / ".gitignore").write_text("*\n!.gitignore\n", encoding="utf-8")
     site.build(MINIMAL, out)
-    assert (out / "index.html").is_file() and (out / site.MARKER).is_file()
+    assert (out / "index.html").is_file() and (out / output.MARKER).is_file()
     assert (out / ".gitignore").read_text(encoding="utf-8") == "*\n!.gitignore\n"
     site.build(MINIMAL, out)  # and again, over its own site
     assert (out / ".gitignore").read_text(encoding="utf-8") == "*\n!.gitignore\n"
@@ -332,24 +333,24 @@ def test_an_interrupted_build_leaves_the_old_site_intact(tmp_path: Path, monkeyp
     site.build(MINIMAL, out)
     before = snapshot(out)
     calls = {"n": 0}
-    real = render.channel_page
+    real = views.channel_page
 
-    def failing(*args: object, **kwargs: object) -> render.ChannelPage:
+    def failing(*args: object, **kwargs: object) -> views.ChannelPage:
         calls["n"] += 1
         if calls["n"] == 2:  # mid-way: the first channel page is already written
             raise KeyboardInterrupt
         return real(*args, **kwargs)  # type: ignore[arg-type]
 
-    monkeypatch.setattr(render, "channel_page", failing)
+    monkeypatch.setattr(views, "channel_page", failing)
     with pytest.raises(KeyboardInterrupt):
-        site.build(MINIMAL, out, incremental=False)  # nothing changed: only a fresh build renders pages
+        site.build(MINIMAL, out, fresh=True)  # nothing changed: only a fresh build renders pages
     assert calls["n"] == 2
     assert snapshot(out) == before
     assert sorted(p.name for p in tmp_path.iterdir()) == ["site"]  # the temporary folder is gone
 
 
 def test_channel_paths_stay_inside_the_channels_folder() -> None:
-    paths = render.channel_paths(["../../etc/passwd", "..", ".hidden", "a", "A", "ok-1.2"])
+    paths = views.channel_paths(["../../etc/passwd", "..", ".hidden", "a", "A", "ok-1.2"])
     assert len(set(p.lower() for p in paths.values())) == len(paths)
     for p in paths.values():
         assert p.startswith("channels/") and p.count("/") == 1 and "/." not in p
@@ -378,7 +379,7 @@ def test_engineering_unit_figures_are_not_converted_twice() -> None:
     # 0.06104 rpm per LSB (hand arithmetic). The rpm is 1/60 Hz, so a second conversion would read 3.662 rpm.
     from generator.analysis import analyze
     from generator.load import load_spec
-    from generator.render import format_figure
+    from generator.views import format_figure
 
     from .conftest import DEMO
 
@@ -390,15 +391,15 @@ def test_engineering_unit_figures_are_not_converted_twice() -> None:
 def test_past_the_limit_proposals_are_left_to_the_command(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
     # The demo flags one channel (TACHO-HSS, band-edge-droop); with the limit at 0 the build designs
     # nothing and says how many channels `specfold propose` would look at.
-    from generator import site as site_module
+    from generator.build import pages
 
-    monkeypatch.setattr(site_module, "SITE_PROPOSALS_LIMIT", 0)
-    site_module.build(DEMO, tmp_path / "out", incremental=False)
+    monkeypatch.setattr(pages, "SITE_PROPOSALS_LIMIT", 0)
+    site.build(DEMO, tmp_path / "out", fresh=True)
     overview = (tmp_path / "out" / "index.html").read_text(encoding="utf-8")
     assert "flagged for specfold propose" in overview
     tacho = next((tmp_path / "out" / "channels").glob("TACHO-HSS*.html")).read_text(encoding="utf-8")
     assert 'id="proposal"' not in tacho
-    monkeypatch.setattr(site_module, "SITE_PROPOSALS_LIMIT", 50)
-    site_module.build(DEMO, tmp_path / "out2", incremental=False)
+    monkeypatch.setattr(pages, "SITE_PROPOSALS_LIMIT", 50)
+    site.build(DEMO, tmp_path / "out2", fresh=True)
     tacho = next((tmp_path / "out2" / "channels").glob("TACHO-HSS*.html")).read_text(encoding="utf-8")
     assert 'id="proposal"' in tacho

@@ -17,7 +17,7 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 from numpy.testing import assert_allclose
-from scipy import signal
+from scipy import optimize, signal
 
 from generator.analysis import analyze
 from generator.analysis.budgets import member_filter
@@ -51,7 +51,18 @@ def _dense_fold_min(filt: flt.AnalogFilter, fs: float, fh: float, points: int = 
     grid = np.concatenate([np.linspace(k * fs - fh, k * fs + fh, per) for k in ks])
     loss = _loss(filt, grid)
     i = int(np.argmin(loss))
-    return float(loss[i]), float(grid[i])
+    best, where = float(loss[i]), float(grid[i])
+    # the grid's best point refined between its neighbours (scipy.optimize, bounded Brent), so a narrow
+    # ripple trough between two grid points is not missed by the reference
+    k = round(where / fs)  # the band the best point lies in: the refinement stays inside it
+    lo = max(float(grid[max(i - 1, 0)]), k * fs - fh)
+    hi = min(float(grid[min(i + 1, grid.size - 1)]), k * fs + fh)
+    if hi > lo:
+        res = optimize.minimize_scalar(lambda f: float(_loss(filt, np.array([f]))[0]), bounds=(lo, hi),
+                                       method="bounded", options={"xatol": 1e-9 * hi})
+        if res.success and float(res.fun) < best:
+            best, where = float(res.fun), float(res.x)
+    return best, where
 
 
 # ------------------------------------------------------------------------------ 1. alias rejection
@@ -86,7 +97,7 @@ def test_elliptic_worst_case_lies_past_its_notch() -> None:
     assert flt.attenuation_db(filt, fs - fh) - got.db > 15  # what the single-point reading overstated by
 
 
-@settings(max_examples=60, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@settings(max_examples=60, deadline=None, derandomize=True, suppress_health_check=[HealthCheck.too_slow])
 @given(
     family=st.sampled_from(flt.FAMILIES),
     order=st.integers(1, 12),
@@ -492,7 +503,7 @@ def test_filter_keys_a_family_has_no_use_for_are_refused(tree: Path) -> None:
 
 
 def test_a_proposal_that_changes_family_removes_the_keys_it_leaves_unused() -> None:
-    from generator.propose import edit_header
+    from generator.edit import edit_header
 
     text = ('+++\ntitle = "x"\n\n[filter]\nfamily = "elliptic"\norder = 5\nripple = "0.5 dB"\n'
             'stopband_attenuation = "60 dB"  # supplier\n+++\nnotes\n')

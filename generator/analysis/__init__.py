@@ -17,10 +17,11 @@ README table, the JSON contract and the channel pages all read that registry.
 from __future__ import annotations
 
 from collections.abc import Mapping
-from dataclasses import dataclass, field, replace
+from dataclasses import dataclass, field
+from functools import cached_property
 from typing import Any
 
-from ..model import Channel, Spec
+from ..model import Channel, Spec, System
 from .amplitude import AmplitudeResult, analyze_amplitude
 from .budgets import Budgets, ChannelBudget, analyze_budgets
 from .figures import FIGURES, FigureInfo, FigureValue, figure_field
@@ -41,16 +42,47 @@ __all__ = [
 ]
 
 
+_PARTS = ("sampling", "amplitude", "output", "image")
+
+
 @dataclass(frozen=True)
 class ChannelResult:
-    """Everything computed for one channel."""
+    """Everything computed for one channel.
+
+    Its parts are computed when first asked for: a build that takes an unchanged channel's figures
+    and findings from its cache never computes them, unless a page showing them is drawn again.
+    """
 
     channel: Channel
-    sampling: SamplingResult | None = None
-    amplitude: AmplitudeResult | None = None
-    output: OutputResult | None = None
-    image: ImageResult | None = None
+    system: System
     budget: ChannelBudget | None = None
+
+    @classmethod
+    def of(cls, channel: Channel, system: System, budget: ChannelBudget | None = None,
+           **parts: object) -> ChannelResult:
+        """A result whose named parts (``sampling=...``) are given rather than computed."""
+        result = cls(channel, system, budget)
+        for name, value in parts.items():
+            if name not in _PARTS:
+                raise TypeError(f"ChannelResult has no part {name!r}")
+            result.__dict__[name] = value  # what cached_property would have stored
+        return result
+
+    @cached_property
+    def sampling(self) -> SamplingResult | None:
+        return analyze_sampling(self.channel, self.system)
+
+    @cached_property
+    def amplitude(self) -> AmplitudeResult | None:
+        return analyze_amplitude(self.channel, self.system)
+
+    @cached_property
+    def output(self) -> OutputResult | None:
+        return analyze_output(self.channel, self.system)
+
+    @cached_property
+    def image(self) -> ImageResult | None:
+        return analyze_image(self.channel, self.system)
 
     @property
     def figures(self) -> dict[str, FigureValue]:
@@ -70,12 +102,9 @@ class SystemAnalysis:
     budgets: Budgets = field(default_factory=lambda: Budgets({}, (), (), (), (), ()))
 
     def result(self, channel_id: str) -> ChannelResult:
-        for r in self.channels:
-            if r.channel.id == channel_id:
-                return r
-        raise KeyError(channel_id)
+        return self.by_id[channel_id]  # KeyError for an unknown id
 
-    @property
+    @cached_property
     def by_id(self) -> Mapping[str, ChannelResult]:
         return {r.channel.id: r for r in self.channels}
 
@@ -96,30 +125,14 @@ class SystemAnalysis:
 
 
 def analyze_channel(channel: Channel, spec: Spec, budgets: Budgets | None = None) -> ChannelResult:
-    """Compute every figure that follows from one channel's requirement."""
-    budget = budgets.channels.get(channel.id) if budgets is not None else None
-    return ChannelResult(
-        channel=channel,
-        sampling=analyze_sampling(channel, spec.system),
-        amplitude=analyze_amplitude(channel, spec.system),
-        output=analyze_output(channel, spec.system),
-        image=analyze_image(channel, spec.system),
-        budget=budget,
-    )
+    """Every figure that follows from one channel's requirement (computed as they are asked for)."""
+    return ChannelResult(channel, spec.system, budgets.channels.get(channel.id) if budgets is not None else None)
 
 
-def analyze(spec: Spec, known: Mapping[str, ChannelResult] | None = None) -> SystemAnalysis:
+def analyze(spec: Spec) -> SystemAnalysis:
     """Analyse every channel of a spec, then the budgets of what they share.
 
-    ``known`` maps channel ids to results computed earlier (the build cache); one is reused only
-    for the very channel object it was computed from, under the same system (the caller's key
-    guarantees that), and gets this run's budget, since budgets span channels."""
+    Each channel's own figures are computed when first asked for (:class:`ChannelResult`); the
+    budgets, which span channels, at once."""
     budgets = analyze_budgets(spec)
-    results = []
-    for ch in spec.channels:
-        old = known.get(ch.id) if known is not None else None
-        if old is not None and old.channel is ch:
-            results.append(replace(old, budget=budgets.channels.get(ch.id)))
-        else:
-            results.append(analyze_channel(ch, spec, budgets))
-    return SystemAnalysis(spec, tuple(results), budgets)
+    return SystemAnalysis(spec, tuple(analyze_channel(ch, spec, budgets) for ch in spec.channels), budgets)

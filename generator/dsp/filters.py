@@ -44,8 +44,6 @@ from typing import overload
 import numpy as np
 from numpy.typing import NDArray
 
-from .memo import Memo
-
 FAMILIES = ("butterworth", "bessel", "chebyshev1", "chebyshev2", "elliptic")
 MAX_ORDER = 20
 IGNORED_RIPPLE_DB = 0.1
@@ -144,30 +142,13 @@ def _design_prototype(
     return z, p, float(k)
 
 Prototype = tuple[NDArray[np.complex128], NDArray[np.complex128], float]
-PrototypeKey = tuple[str, int, float, float]
 
 
-def _is_key(key: object, kinds: tuple[type, ...]) -> bool:
-    return (isinstance(key, tuple) and len(key) == len(kinds) and key[0] in FAMILIES
-            and all(type(v) is t for v, t in zip(key, kinds, strict=True)))
-
-
-def _is_roots(value: object) -> bool:
-    return isinstance(value, np.ndarray) and value.dtype == np.complex128 and value.ndim == 1
-
-
-_PROTOTYPES: Memo[PrototypeKey, Prototype] = Memo(
-    "filter prototypes",
-    lambda key, v: (_is_key(key, (str, int, float, float)) and isinstance(v, tuple) and len(v) == 3
-                    and _is_roots(v[0]) and _is_roots(v[1]) and type(v[2]) is float))
-"""Every prototype designed (or remembered) in this process: a handful of (family, order, ripple,
-stopband) combinations serve thousands of channels."""
-
-
+@lru_cache(maxsize=4096)
 def _prototype(family: str, order: int, ripple_db: float, stopband_db: float) -> Prototype:
-    """The prototype of :func:`_design_prototype`, designed once per process (or remembered)."""
-    return _PROTOTYPES.get((family, order, ripple_db, stopband_db),
-                           lambda: _design_prototype(family, order, ripple_db, stopband_db))
+    """The prototype of :func:`_design_prototype`, designed once per process: a handful of
+    (family, order, ripple, stopband) combinations serve thousands of channels."""
+    return _design_prototype(family, order, ripple_db, stopband_db)
 
 
 @lru_cache(maxsize=65536)
@@ -312,16 +293,10 @@ def _meets(family: str, order: int, corner: float, ripple: float, stop: float,
     return bool(attenuation_db(filt, f_pass) <= ap + tol and attenuation_db(filt, f_stop) >= as_ - tol * max(1.0, as_))
 
 
-_LOSS_POINTS: Memo[tuple[str, int, float, float, float], float | None] = Memo(
-    "normalised loss points",
-    lambda key, v: (_is_key(key, (str, int, float, float, float)) and (v is None or type(v) is float)))
-"""Every solution of :func:`_find_normalised_loss` in this process (or remembered)."""
-
-
+@lru_cache(maxsize=16384)
 def _solve_normalised_loss(family: str, order: int, ripple: float, stop: float, loss_db: float) -> float | None:
-    """:func:`_find_normalised_loss`, solved once per process (or remembered)."""
-    return _LOSS_POINTS.get((family, order, ripple, stop, loss_db),
-                            lambda: _find_normalised_loss(family, order, ripple, stop, loss_db))
+    """:func:`_find_normalised_loss`, solved once per process."""
+    return _find_normalised_loss(family, order, ripple, stop, loss_db)
 
 
 def _find_normalised_loss(family: str, order: int, ripple: float, stop: float, loss_db: float) -> float | None:
@@ -339,16 +314,10 @@ def _find_normalised_loss(family: str, order: int, ripple: float, stop: float, l
     return math.exp(float(optimize.brentq(g, lo, hi, xtol=1e-13, rtol=1e-13)))
 
 
-_LEAST_ORDERS: Memo[tuple[str, float, float, float], tuple[int, float] | None] = Memo(
-    "least orders",
-    lambda key, v: _is_key(key, (str, float, float, float)) and (
-        v is None or (isinstance(v, tuple) and len(v) == 2 and type(v[0]) is int and type(v[1]) is float)))
-"""Every least order found in this process (or remembered), by (family, ratio, Ap, As)."""
-
-
+@lru_cache(maxsize=16384)
 def _least_order_normalised(family: str, ratio: float, ap: float, as_: float) -> tuple[int, float] | None:
-    """:func:`_find_least_order_normalised`, found once per process (or remembered)."""
-    return _LEAST_ORDERS.get((family, ratio, ap, as_), lambda: _find_least_order_normalised(family, ratio, ap, as_))
+    """:func:`_find_least_order_normalised`, found once per process by (family, ratio, Ap, As)."""
+    return _find_least_order_normalised(family, ratio, ap, as_)
 
 
 def _agm(a: float, b: float) -> float:
@@ -693,15 +662,14 @@ def frequency_for_attenuation(filt: AnalogFilter, atten_db: float) -> float | No
         return 0.0
     if filt.family in ("chebyshev2", "elliptic") and atten_db > filt.stopband_db + 1e-9:
         return None
-    key = (filt.family, filt.order, filt.ripple_db, filt.stopband_db, float(atten_db))
-    x = _ATTENUATION_POINTS.get(key, lambda: _find_attenuation_point(filt, float(atten_db)))
+    x = _attenuation_point(filt.family, filt.order, filt.ripple_db, filt.stopband_db, float(atten_db))
     return None if x is None else x * filt.corner_hz
 
 
-_ATTENUATION_POINTS: Memo[tuple[str, int, float, float, float], float | None] = Memo(
-    "attenuation points",
-    lambda key, v: (_is_key(key, (str, int, float, float, float)) and (v is None or type(v) is float)))
-"""Normalised frequencies of :func:`frequency_for_attenuation`, by prototype and attenuation."""
+@lru_cache(maxsize=16384)
+def _attenuation_point(family: str, order: int, ripple: float, stop: float, atten_db: float) -> float | None:
+    """:func:`_find_attenuation_point` once per prototype and attenuation (it scales with the corner)."""
+    return _find_attenuation_point(design(family, order, 1.0, ripple, stop), atten_db)
 
 
 def _find_attenuation_point(filt: AnalogFilter, atten_db: float) -> float | None:

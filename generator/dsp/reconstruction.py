@@ -22,11 +22,11 @@ from __future__ import annotations
 
 import itertools
 import math
+from functools import lru_cache
 
 import numpy as np
 
 from . import filters as flt
-from .memo import Memo
 
 
 def hold_gain(f_hz: float, rate_hz: float) -> float:
@@ -100,13 +100,10 @@ def filter_needed_at_image_db(target_db: float, f_hz: float, rate_hz: float) -> 
     return target_db + image_level_after_hold_db(f_hz, rate_hz)
 
 
-_HOLD_FRACTIONS: Memo[float, float] = Memo(
-    "hold fractions", lambda key, value: type(key) is float and type(value) is float and 0.0 <= value <= 0.5)
-
-
+@lru_cache(maxsize=4096)
 def max_hold_fraction(loss_db: float) -> float:
-    """:func:`_solve_hold_fraction`, solved once per process (or remembered) for each loss."""
-    return _HOLD_FRACTIONS.get(float(loss_db), lambda: _solve_hold_fraction(float(loss_db)))
+    """:func:`_solve_hold_fraction`, solved once per process for each loss."""
+    return _solve_hold_fraction(float(loss_db))
 
 
 def _solve_hold_fraction(loss_db: float) -> float:

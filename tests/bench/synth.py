@@ -74,8 +74,10 @@ def _channel(text: str, cid: str, bay: int, rng: random.Random) -> str:
     return text.rstrip("\n") + _extra_notes(rng, cid, bay)
 
 
-def write_system(n: int, root: Path) -> Path:
-    """Write a spec tree of ``n`` channels into ``root`` (replaced); returns ``root``."""
+def write_system(n: int, root: Path, shared_link: bool = False) -> Path:
+    """Write a spec tree of ``n`` channels into ``root`` (replaced); returns ``root``.  With
+    ``shared_link`` every channel is routed over bay 0's link, which cannot carry them all: one
+    link-capacity finding names every channel on it (the worst case for anything per finding x channel)."""
     if root.exists():
         shutil.rmtree(root)
     (root / "channels").mkdir(parents=True)
@@ -90,6 +92,11 @@ def write_system(n: int, root: Path) -> Path:
         folder = root / "channels" / f"bay-{bay:04d}"
         folder.mkdir(exist_ok=True)
         text = _channel(src.read_text(encoding="utf-8"), cid, bay, rng)
+        if shared_link:
+            if re.search(r'^link = "[a-z0-9-]+"$', text, flags=re.M):
+                text = re.sub(r'^link = "[a-z0-9-]+"$', 'link = "net0-0"', text, count=1, flags=re.M)
+            else:
+                text = text.replace("[conversion]\n", '[conversion]\nlink = "net0-0"\n', 1)
         (folder / f"{cid}.md").write_text(text, encoding="utf-8")
     return root
 

@@ -15,7 +15,7 @@ import json
 import math
 import re
 from collections.abc import Iterable, Mapping, Sequence
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from typing import Any
 
 import markdown
@@ -23,9 +23,10 @@ import nh3
 from markupsafe import Markup
 
 from .analysis import FIGURES, ChannelResult, FigureValue, SystemAnalysis
-from .charts import Chart, channel_charts
+from .charts import channel_charts
+from .edit import file_edits
 from .model import Channel
-from .propose import Proposal, file_edits
+from .propose import Proposal
 from .quantities import format_in_unit, format_percent, format_quantity
 from .report import counts
 from .rules import SEVERITIES, SEVERITY_RANK, Finding, Rule, by_channel, worst_status
@@ -153,6 +154,38 @@ class Caution:
     lines: tuple[str, ...]
     findings: tuple[FindingView, ...]
     deferral: str = SAFETY_DEFERRAL
+
+
+@dataclass(frozen=True)
+class ChannelSheet:
+    """What a channel's page shows that follows from its file and system.toml alone: the build cache
+    keeps its digest beside the channel's figures."""
+
+    id: str
+    title: str
+    kind: str
+    file: str
+    measurand: str
+    unit: str
+    tags: tuple[str, ...]
+    header: str
+    figures: tuple[FigureRow, ...]
+    notes: Markup
+    charts: tuple[ChartView, ...]
+    stages: tuple[StageRow, ...]
+    safety: tuple[str, ...]  # the caution's lines from the channel's own [safety]
+
+
+@dataclass(frozen=True)
+class ChannelLive:
+    """What a channel's page shows that other channels and system-wide checks decide: its status,
+    its findings (its own and shared ones), its proposal, the page's frame."""
+
+    frame: Frame
+    status: str
+    findings: tuple[FindingView, ...]
+    cautions: tuple[FindingView, ...]
+    proposal: ProposalView | None
 
 
 @dataclass(frozen=True)
@@ -508,8 +541,9 @@ def _filter(ch: Channel) -> str:
     return ", ".join(parts)
 
 
-def _finding_view(f: Finding, ctx: Context, root: str) -> FindingView:
-    links = tuple(Link(root + ctx.paths[c], c) if c in ctx.paths else Link("", c) for c in f.channels)
+def _finding_view(f: Finding, ctx: Context, root: str, with_channels: bool = True) -> FindingView:
+    links = tuple(Link(root + ctx.paths[c], c) if c in ctx.paths else Link("", c)
+                  for c in f.channels) if with_channels else ()
     return FindingView(
         rule=f.rule,
         rule_href=f"{root}rules.html#rule-{slug(f.rule)}",
@@ -522,16 +556,7 @@ def _finding_view(f: Finding, ctx: Context, root: str) -> FindingView:
     )
 
 
-def _caution(ch: Channel, findings: Sequence[FindingView]) -> Caution | None:
-    s = ch.safety
-    lines: list[str] = []
-    if s.working_voltage is not None:
-        lines.append(f"Working voltage {format_quantity(s.working_voltage, 'V')} rms to earth at the point of "
-                     "measurement or drive.")
-    if s.powered_actuator:
-        lines.append("This output commands a powered actuator: a wrong or stuck command moves machinery.")
-    if s.note:
-        lines.append(s.note)
+def _caution(lines: Sequence[str], findings: Sequence[FindingView]) -> Caution | None:
     if not lines and not findings:
         return None
     return Caution(tuple(lines), tuple(findings))
@@ -546,33 +571,58 @@ def _ordered(findings: Iterable[Finding]) -> list[Finding]:
 # ---------------------------------------------------------------------------------------------
 
 
-def channel_page(result: ChannelResult, ctx: Context, charts: Sequence[Chart] | None = None) -> ChannelPage:
-    """One channel: requirement as written, figures, findings, caution, notes, charts."""
+def channel_sheet(result: ChannelResult) -> ChannelSheet:
+    """The part of a channel page that follows from the channel alone (figures, charts, notes...)."""
     ch = result.channel
-    root = "../"
-    mine = _ordered(ctx.by_channel.get(ch.id, ()))
-    views = [_finding_view(f, ctx, root) for f in mine]
-    cautions = [v for v in views if v.rule == CAUTION_RULE]
-    built = channel_charts(result) if charts is None else list(charts)
-    return ChannelPage(
-        frame=_frame(ctx, f"{ch.id}: {ch.title}", root, "", plotly=bool(built)),
-        id=ch.id,
-        title=ch.title,
-        kind=ch.kind,
-        status=ctx.status[ch.id],
-        file=ch.source.file,
-        measurand=ch.measurand,
-        unit=ch.unit.symbol,
-        tags=ch.tags,
-        header=ch.header.strip("\n"),
-        figures=figure_rows(result),
-        findings=tuple(v for v in views if v.rule != CAUTION_RULE),
-        caution=_caution(ch, cautions),
+    return ChannelSheet(
+        id=ch.id, title=ch.title, kind=ch.kind, file=ch.source.file, measurand=ch.measurand,
+        unit=ch.unit.symbol, tags=ch.tags, header=ch.header.strip("\n"), figures=figure_rows(result),
         notes=notes_html(ch.notes),
-        charts=tuple(ChartView(c.id, c.title, c.caption, Markup(c.to_json())) for c in built),  # <, >, & escaped
-        up=Link(root + "index.html", "All channels"),
+        charts=tuple(ChartView(c.id, c.title, c.caption, Markup(c.to_json()))  # <, >, & escaped
+                     for c in channel_charts(result)),
         stages=stage_rows(result.figures.get("stages")),
-        proposal=_proposal_view(result, ctx.proposals.get(ch.id)),
+        safety=_safety_lines(ch),
+    )
+
+
+def _safety_lines(ch: Channel) -> tuple[str, ...]:
+    """The caution's lines from the channel's own [safety]."""
+    s = ch.safety
+    lines: list[str] = []
+    if s.working_voltage is not None:
+        lines.append(f"Working voltage {format_quantity(s.working_voltage, 'V')} rms to earth at the point of "
+                     "measurement or drive.")
+    if s.powered_actuator:
+        lines.append("This output commands a powered actuator: a wrong or stuck command moves machinery.")
+    if s.note:
+        lines.append(s.note)
+    return tuple(lines)
+
+
+def channel_live(channel: Channel, ctx: Context, root: str) -> ChannelLive:
+    """The part of a channel page that other channels and the system-wide checks decide.
+
+    A finding that names other channels too is shown without their list (the findings page has it):
+    a page stays the same size however many channels a shared finding names."""
+    views = [_finding_view(f, ctx, root, with_channels=False) for f in _ordered(ctx.by_channel.get(channel.id, ()))]
+    return ChannelLive(
+        frame=_frame(ctx, f"{channel.id}: {channel.title}", root, ""),
+        status=ctx.status[channel.id],
+        findings=tuple(v for v in views if v.rule != CAUTION_RULE),
+        cautions=tuple(v for v in views if v.rule == CAUTION_RULE),
+        proposal=_proposal_view(channel, ctx.proposals.get(channel.id)),
+    )
+
+
+def channel_page(sheet: ChannelSheet, live: ChannelLive) -> ChannelPage:
+    """One channel: requirement as written, figures, findings, caution, notes, charts."""
+    return ChannelPage(
+        frame=replace(live.frame, plotly=bool(sheet.charts)), id=sheet.id, title=sheet.title, kind=sheet.kind,
+        status=live.status, file=sheet.file,
+        measurand=sheet.measurand, unit=sheet.unit, tags=sheet.tags, header=sheet.header, figures=sheet.figures,
+        findings=live.findings, caution=_caution(sheet.safety, live.cautions), notes=sheet.notes,
+        charts=sheet.charts, up=Link(live.frame.root + "index.html", "All channels"), stages=sheet.stages,
+        proposal=live.proposal,
     )
 
 
@@ -590,21 +640,20 @@ def stage_rows(stages: FigureValue) -> tuple[StageRow, ...]:
     return tuple(rows)
 
 
-def _current_design(result: ChannelResult) -> str:
-    ch = result.channel
+def _current_design(ch: Channel) -> str:
     rate = ch.conversion.rate
     text = format_quantity(rate, "Hz").replace("Hz", "S/s") if rate is not None else "no rate"
     return f"{text}; {_filter(ch) or 'no filter'}"
 
 
-def _proposal_view(result: ChannelResult, proposal: Proposal | None) -> ProposalView | None:
+def _proposal_view(channel: Channel, proposal: Proposal | None) -> ProposalView | None:
     if proposal is None:
         return None
     stages = tuple(StageRow(i, "first" if s.q is None else "second", format_quantity(s.f0_hz, "Hz"),
                             "" if s.q is None else f"{s.q:.4f}",
                             "" if s.notch_hz is None else format_quantity(s.notch_hz, "Hz"))
                    for i, s in enumerate(proposal.stages, start=1))
-    return ProposalView(_current_design(result), proposal.explanation, proposal.design is not None,
+    return ProposalView(_current_design(channel), proposal.explanation, proposal.design is not None,
                         tuple((k, "(removed)" if v is None else v) for k, v in file_edits(proposal)), stages,
                         proposal.unfixable if proposal.design is not None else ())
 
@@ -808,30 +857,23 @@ def book_sections(analysis: SystemAnalysis) -> tuple[BookSection, ...]:
     return tuple(BookSection(paths[k], n, tuple(m)) for k, n, m in zip(keys, names, members, strict=True))
 
 
-def _sheet(r: ChannelResult, ctx: Context, root: str) -> Sheet:
-    ch = r.channel
-    views = [_finding_view(f, ctx, root) for f in _ordered(ctx.by_channel.get(ch.id, ()))]
-    return Sheet(
-        ch.id, f"sheet-{slug(ch.id)}", ch.title, ch.kind, ctx.status[ch.id], ch.source.file,
-        ch.header.strip("\n"), figure_rows(r),
-        tuple(v for v in views if v.rule != CAUTION_RULE),
-        _caution(ch, [v for v in views if v.rule == CAUTION_RULE]),
-    )
+def book_sheet(result: ChannelResult, live: ChannelLive) -> Sheet:
+    """One channel's sheet in the spec book: a part of what its page shows (no notes, no charts)."""
+    ch = result.channel
+    return Sheet(ch.id, f"sheet-{slug(ch.id)}", ch.title, ch.kind, live.status, ch.source.file, ch.header.strip("\n"),
+                 figure_rows(result), live.findings, _caution(_safety_lines(ch), live.cautions))
 
 
-def book_page(ctx: Context) -> BookPage:
+def book_page(ctx: Context, sheets: Sequence[Sheet]) -> BookPage:
     """Every channel on one printable page: requirement, figures and findings per sheet."""
-    sheets = tuple(_sheet(r, ctx, "") for r in ctx.analysis.channels)
     return BookPage(_frame(ctx, "Spec book", "", "book.html"), ctx.analysis.spec.system.description,
-                    totals(ctx), sheets)
+                    totals(ctx), tuple(sheets))
 
 
-def book_section_page(ctx: Context, section: BookSection) -> BookPage:
+def book_section_page(ctx: Context, section: BookSection, sheets: Sequence[Sheet]) -> BookPage:
     """One page of a split book: the sheets of one section, linking up one folder."""
-    root = "../"
-    sheets = tuple(_sheet(ctx.analysis.channels[i], ctx, root) for i in section.channels)
-    return BookPage(_frame(ctx, f"Spec book: {section.label}", root, "book.html"),
-                    ctx.analysis.spec.system.description, None, sheets, section.label)
+    return BookPage(_frame(ctx, f"Spec book: {section.label}", "../", "book.html"),
+                    ctx.analysis.spec.system.description, None, tuple(sheets), section.label)
 
 
 def book_index_page(ctx: Context, sections: Sequence[BookSection]) -> BookIndexPage:
