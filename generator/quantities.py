@@ -660,8 +660,15 @@ def parse_quantity(text: str, expect: str | tuple[str, ...], field: str = "") ->
 
     ``expect`` names the acceptable dimensions (``"*"`` accepts all); a bare number is
     accepted only where ``"1"`` (or ``"*"``) is expected.  ``field`` names the key in messages.
-    Ranges (``±``, ``..``) are refused here: read them with :func:`parse_span`.
+    Ranges (``±``, ``..``) are refused here: read them with :func:`parse_span`.  A large spec
+    writes the same few values thousands of times: a value read once is remembered.
     """
+    if type(text) is str and isinstance(expect, str | tuple):
+        return _parse_quantity_memo(text, expect, field)
+    return _parse_quantity(text, expect, field)
+
+
+def _parse_quantity(text: str, expect: str | tuple[str, ...], field: str = "") -> Quantity:
     dims = _dims(expect)
     raw = _coerce(text, field, dims)
     _check_length(raw, field, dims)
@@ -670,6 +677,9 @@ def parse_quantity(text: str, expect: str | tuple[str, ...], field: str = "") ->
         raise SpecError(f"{_lead(field)}{_quote(raw)} is a range, expected a single value: {_such_as(dims)}")
     value, dim = _parse_one(raw, norm, field, dims)
     return Quantity(value, dim)
+
+
+_parse_quantity_memo = lru_cache(maxsize=65536)(_parse_quantity)
 
 
 def parse_span(text: str, expect: str | tuple[str, ...], field: str = "") -> Span:

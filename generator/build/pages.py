@@ -170,6 +170,7 @@ class _Job:
     site: Site
     env: jinja2.Environment
     tmp: Path
+    sections: tuple[views.BookSection, ...]
 
 
 _JOB: _Job | None = None
@@ -188,16 +189,48 @@ def _die_with_parent(parent: int) -> None:
         os._exit(0)
 
 
-def _render_chunk(indices: list[int]) -> list[tuple[int, str, str]]:
-    """Render and write channel pages in a worker: (index, view digest, sheet digest) of each."""
+def _render_chunk(tasks: list[tuple[str, int]]) -> list[tuple[str, int, str]]:
+    """Render and write pages in a worker: ("channel", index) or ("section", index) tasks; returns
+    (kind, index, digest) of each: a channel page's sheet digest (its view digest the parent has
+    already, or computes from it), a section's nothing."""
     assert _JOB is not None
+    site, env, tmp = _JOB.site, _JOB.env, _JOB.tmp
     out = []
-    for i in indices:
-        result = _JOB.site.analysis.channels[i]
-        rel, html, view = _channel_page(_JOB.site, _JOB.env, result)
-        write(_JOB.tmp, rel, html)
-        out.append((i, view, _JOB.site.sheets[result.channel.id]))
+    for kind, i in tasks:
+        if kind == "channel":
+            result = site.analysis.channels[i]
+            rel, html, view = _channel_page(site, env, result)
+            write(tmp, rel, html)
+            out.append((kind, i, f"{site.sheets[result.channel.id]} {view}"))
+        else:
+            section = _JOB.sections[i]
+            write(tmp, section.path, _book_html(site, env, [site.analysis.channels[k] for k in section.channels],
+                                                section))
+            out.append((kind, i, ""))
     return out
+
+
+def _in_pool(site: Site, env: jinja2.Environment, tmp: Path, sections: tuple[views.BookSection, ...],
+             tasks: list[tuple[str, int]], weight: int,
+             tick: Callable[[int], None] = lambda n: None) -> list[tuple[str, int, str]] | None:
+    """Run ``tasks`` in forked workers when there is enough work (``weight``: channels to draw);
+    None when it is better done in this process."""
+    global _JOB
+    workers = _workers(weight)
+    if not workers:
+        return None
+    _JOB = _Job(site, env, tmp, sections)
+    try:
+        ctx = multiprocessing.get_context("fork")
+        chunks = [tasks[k:k + POOL_CHUNK] for k in range(0, len(tasks), POOL_CHUNK)]
+        out: list[tuple[str, int, str]] = []
+        with ctx.Pool(workers, initializer=_die_with_parent, initargs=(os.getpid(),)) as pool:
+            for rendered in pool.imap(_render_chunk, chunks):
+                out.extend(rendered)
+                tick(len(rendered))
+        return out
+    finally:
+        _JOB = None
 
 
 def _workers(todo: int) -> int:
@@ -217,7 +250,6 @@ def write_site(site: Site, tmp: Path, old: Path, pages: PageStore, progress: Pro
     """Write every file of ``site`` into the empty folder ``tmp``: each page whose view digest the
     page store vouches for is carried from the current site ``old``, every other one rendered.
     Returns the number of HTML pages; ``site.written`` gets every file's view digest."""
-    global _JOB
     env = environment()
     analysis = site.analysis
     sections = views.book_sections(analysis)
@@ -246,36 +278,40 @@ def write_site(site: Site, tmp: Path, old: Path, pages: PageStore, progress: Pro
                 progress(done, total, rel)
         else:
             todo.append(i)
-    workers = _workers(len(todo))
-    if workers:
-        _JOB = _Job(site, env, tmp)
-        try:
-            ctx = multiprocessing.get_context("fork")
-            chunks = [todo[k:k + POOL_CHUNK] for k in range(0, len(todo), POOL_CHUNK)]
-            with ctx.Pool(workers, initializer=_die_with_parent, initargs=(os.getpid(),)) as pool:
-                for rendered in pool.imap(_render_chunk, chunks):
-                    for i, view, sheet in rendered:
-                        cid = analysis.channels[i].channel.id
-                        site.sheets[cid] = sheet
-                        site.written[site.ctx.paths[cid]] = view
-                    done += len(rendered)
-                    if progress is not None:
-                        progress(done, total, "channels/")
-        finally:
-            _JOB = None
+    def tick(n: int, what: str = "channels/") -> None:
+        nonlocal done
+        done += n
+        if progress is not None:
+            progress(done, total, what)
+
+    tasks = [("channel", i) for i in todo]
+    pooled = _in_pool(site, env, tmp, sections, tasks, len(todo), tick)
+    if pooled is not None:
+        for _, i, both in pooled:
+            cid = analysis.channels[i].channel.id
+            site.sheets[cid], site.written[site.ctx.paths[cid]] = both.split(" ")
     else:
         for i in todo:
             rel, html, view = _channel_page(site, env, analysis.channels[i])
             write(tmp, rel, html)
             site.written[rel] = view
-            done += 1
-            if progress is not None:
-                progress(done, total, rel)
+            tick(1, rel)
     halt_point("site")  # the channel pages written
-    for section in sections:
+    drawn: list[int] = []  # sections to draw: those whose view changed
+    for j, section in enumerate(sections):
         members = [analysis.channels[i] for i in section.channels]
-        put(section.path, _book_digest(site, members, "../", section.label),
-            lambda s=section, m=members: _book_html(site, env, m, s))  # type: ignore[misc]
+        view = _book_digest(site, members, "../", section.label)
+        site.written[section.path] = view
+        if not (pages.carried(section.path, view, old)
+                and carry(os.path.join(old, section.path), os.path.join(tmp, section.path))):
+            drawn.append(j)
+    tick(len(sections) - len(drawn), "book/")
+    if _in_pool(site, env, tmp, sections, [("section", j) for j in drawn],
+                sum(len(sections[j].channels) for j in drawn), lambda n: tick(n, "book/")) is None:
+        for j in drawn:
+            members = [analysis.channels[i] for i in sections[j].channels]
+            write(tmp, sections[j].path, _book_html(site, env, members, sections[j]))
+            tick(1, sections[j].path)
     for rel in SHARED_PAGES:
         template, view = _shared_view(site, rel, sections)
         if rel == "book.html" and not sections:

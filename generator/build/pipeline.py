@@ -4,7 +4,9 @@ runs, and the first half of :func:`generator.build.site.build`.  Imports nothing
 
 from __future__ import annotations
 
-from collections.abc import Callable, Mapping
+import gc
+from collections.abc import Callable, Iterator, Mapping
+from contextlib import contextmanager
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -42,13 +44,32 @@ def channel_store(specs: Path, cache: str | None = None, fresh: bool = False) ->
     return ChannelStore(cache_folder(specs, cache), tool_key([TEMPLATES]), read=not fresh)
 
 
+@contextmanager
+def settled_memory() -> Iterator[None]:
+    """Python's cyclic collector paused while the spec is loaded and checked, then everything alive
+    moved out of its reach (``gc.freeze``) until the block ends.
+
+    Loading and checking build one large graph of objects that lives until the command ends; every
+    automatic collection meanwhile walks all of it again: 3 s of an 11 s check at 10,000 channels
+    (measured), and later collections, in the parent and in forked workers, would walk it again."""
+    enabled = gc.isenabled()
+    gc.disable()
+    try:
+        yield
+    finally:
+        gc.freeze()
+        if enabled:
+            gc.enable()
+
+
 def check(specs: Path | str, store: ChannelStore, on_file: Callable[[], None] | None = None) -> Checked:
     """Load, analyse and check ``specs``; a channel file the store knows is taken from it as loaded,
     with its channel-rule findings and figures, instead of being parsed, analysed and checked."""
-    spec = load_spec(specs, on_file, cached=store)
-    analysis = analyze(spec)
-    per_channel = channel_rule_table(analysis, store.findings(spec.channels))
-    findings = run_rules(analysis, per_channel=per_channel)
+    with settled_memory():
+        spec = load_spec(specs, on_file, cached=store)
+        analysis = analyze(spec)
+        per_channel = channel_rule_table(analysis, store.findings(spec.channels))
+        findings = run_rules(analysis, per_channel=per_channel)
     return Checked(analysis, findings, per_channel, store.figures(spec.channels), store.sheets(spec.channels))
 
 
