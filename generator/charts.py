@@ -317,7 +317,7 @@ def filter_response_chart(result: ChannelResult) -> Chart | None:
         marks.append((s.nyquist_hz, f"fs/2 = {_hz(s.nyquist_hz)}", MARK_COLOUR))
         if s.first_alias_hz > 0:
             marks.append((s.first_alias_hz, f"first alias {_hz(s.first_alias_hz)}", TONE_COLOUR))
-        if s.modulator_alias_hz:
+        if s.modulator_alias_hz is not None and s.modulator_alias_hz > 0:
             marks.append((s.modulator_alias_hz, f"modulator alias {_hz(s.modulator_alias_hz)}", TONE_COLOUR))
         what = "Anti-aliasing filter"
         if s.delta_sigma:
@@ -340,6 +340,7 @@ def filter_response_chart(result: ChannelResult) -> Chart | None:
         return None
     if not (fs > 0 and f_high > 0):
         return None
+    marks = [m for m in marks if m[0] > 0]  # a nonsense rate (found by a rule) can put one below 0 Hz
 
     top = max([fs, filt.corner_hz, *(m[0] for m in marks), *([stop] if stop else [])])
     f_lo, f_hi = min(f_high, filt.corner_hz) / 20.0, 3.0 * top
